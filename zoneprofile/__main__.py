@@ -1,0 +1,5 @@
+import sys
+
+from zoneprofile.cli import main
+
+sys.exit(main())

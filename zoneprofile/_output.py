@@ -1,0 +1,192 @@
+"""Writing outputs safely: atomically, never over an existing file without ``force``.
+
+Every command checks all its output paths with :func:`check_outputs` *before*
+computing, then writes each file with one of the ``write_*`` functions, which
+write to a temporary file in the same folder and rename it into place, so a
+crash never leaves a half-written output.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from zoneprofile._validation import InputError
+
+__all__ = [
+    "check_outputs",
+    "write_bytes",
+    "write_text",
+    "write_json",
+    "write_table",
+    "to_jsonable",
+    "neutralise_cell",
+    "atomic_folder",
+]
+
+
+def check_outputs(*paths, force: bool = False) -> list[Path]:
+    """Refuse outputs that exist (unless ``force``) or whose folder is missing."""
+    out = []
+    for path in paths:
+        if path is None:
+            continue
+        p = Path(path)
+        if p.exists() and not force:
+            message = "output exists; pass --force to overwrite it"
+            raise InputError(message, path=p)
+        if p.exists() and p.is_dir() and not p.suffix == "":
+            message = "output is a folder, expected a file name"
+            raise InputError(message, path=p)
+        parent = p.parent if str(p.parent) else Path(".")
+        if not parent.exists():
+            message = "the folder for this output does not exist; create it first"
+            raise InputError(message, path=p)
+        out.append(p)
+    return out
+
+
+def write_bytes(path, data: bytes) -> Path:
+    """Write ``data`` to ``path`` atomically (temporary file, then rename)."""
+    p = Path(path)
+    p.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=p.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, p)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return p
+
+
+def write_text(path, text: str) -> Path:
+    """Write UTF-8 ``text`` atomically."""
+    return write_bytes(path, text.encode("utf-8"))
+
+
+def to_jsonable(obj):
+    """Convert numpy scalars/arrays, Paths and non-finite floats to JSON-safe values.
+
+    NaN and infinities become ``None`` (JSON ``null``) so the file stays valid JSON.
+    """
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [to_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        x = float(obj)
+        return x if math.isfinite(x) else None
+    if isinstance(obj, Path):
+        return str(obj)
+    return obj
+
+
+def write_json(path, obj) -> Path:
+    """Write ``obj`` as indented JSON atomically."""
+    text = json.dumps(to_jsonable(obj), indent=2, ensure_ascii=False, allow_nan=False)
+    return write_text(path, text + "\n")
+
+
+_FORMULA_START = ("=", "+", "@", "\t", "\r")
+
+
+def neutralise_cell(value):
+    """Make a text cell safe to open in a spreadsheet.
+
+    Text starting with ``=``, ``+``, ``@`` (or ``-`` when it is not a number) is
+    prefixed with a single quote so spreadsheet programs do not run it as a
+    formula. Numbers are returned unchanged.
+    """
+    if not isinstance(value, str) or not value:
+        return value
+    if value.startswith(_FORMULA_START):
+        return "'" + value
+    if value.startswith("-"):
+        try:
+            float(value)
+        except ValueError:
+            return "'" + value
+    return value
+
+
+def write_table(path, frame, *, index: bool = False) -> Path:
+    """Write a DataFrame as CSV, TSV, XLSX or JSON (by extension), atomically.
+
+    Text cells are neutralised against spreadsheet formula injection.
+    """
+    import pandas as pd
+
+    p = Path(path)
+    safe = frame.copy()
+    for col in safe.columns:
+        if safe[col].dtype == object or pd.api.types.is_string_dtype(safe[col]):
+            safe[col] = safe[col].map(neutralise_cell)
+    ext = p.suffix.lower()
+    if ext in (".csv", ".txt", ""):
+        data = safe.to_csv(index=index, lineterminator="\n").encode("utf-8")
+    elif ext == ".tsv":
+        data = safe.to_csv(index=index, sep="\t", lineterminator="\n").encode("utf-8")
+    elif ext == ".json":
+        data = (safe.to_json(orient="records", indent=2, force_ascii=False) + "\n").encode("utf-8")
+    elif ext == ".xlsx":
+        import io
+
+        buf = io.BytesIO()
+        safe.to_excel(buf, index=index, engine="openpyxl")
+        data = buf.getvalue()
+    else:
+        message = f"unsupported output extension '{ext}'; use .csv, .tsv, .xlsx or .json"
+        raise InputError(message, path=p)
+    return write_bytes(p, data)
+
+
+class atomic_folder:
+    """Build an output folder under a temporary name, then move it into place.
+
+    ``with atomic_folder(out, force=...) as tmp:`` yields a temporary folder
+    beside ``out``; on success it replaces ``out`` (only if ``force`` allowed an
+    existing one), on failure it is removed and ``out`` is untouched.
+    """
+
+    def __init__(self, path, *, force: bool = False):
+        self.path = Path(path)
+        self.force = force
+        self.tmp: Path | None = None
+
+    def __enter__(self) -> Path:
+        if self.path.exists() and not self.force:
+            message = "output folder exists; pass --force to overwrite it"
+            raise InputError(message, path=self.path)
+        parent = self.path.parent if str(self.path.parent) else Path(".")
+        parent.mkdir(parents=True, exist_ok=True)
+        self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.path.name}.", dir=parent))
+        return self.tmp
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is not None:
+            shutil.rmtree(self.tmp, ignore_errors=True)
+            return False
+        if self.path.exists():
+            old = self.path.with_name(f".{self.path.name}.old")
+            shutil.rmtree(old, ignore_errors=True)
+            os.replace(self.path, old)
+            os.replace(self.tmp, self.path)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            os.replace(self.tmp, self.path)
+        return False

@@ -1,0 +1,99 @@
+"""The ``zoneprofile`` command line: a thin shell over the public functions.
+
+Each command lives in its own small module of this package with two functions:
+``configure(parser)`` adds its arguments and ``run(args) -> int`` does the work
+by calling public functions of the stage packages. Heavy imports happen inside
+``run`` so ``zoneprofile --help`` stays fast.
+
+Exit codes: 0 success, 2 bad input (one plain line on stderr naming the file,
+row and column where they apply), 1 internal error. Set ``ZONEPROFILE_DEBUG=1``
+to see the traceback of an internal error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import os
+import sys
+import traceback
+
+from zoneprofile import __version__
+from zoneprofile._validation import InputError
+
+__all__ = ["main", "COMMANDS"]
+
+# name -> (module, one-line help). An explicit registry: adding a command means
+# adding a module and a line here.
+COMMANDS: dict[str, tuple[str, str]] = {
+    "demo": ("zoneprofile.cli.demo", "write and run the invented demo campaign"),
+    "recalc": ("zoneprofile.cli.recalc", "microprobe table -> cations, An/Fo/Wo-En-Fs, QC, distance from rim"),
+    "zones": ("zoneprofile.cli.zones", "read the zoning of a profile: steps, resorption, oscillatory bands, zones"),
+    "fit": ("zoneprofile.cli.fit", "fit a diffusion model to a boundary and date it"),
+    "laws": ("zoneprofile.cli.laws", "list the diffusion laws with citations and calibrated ranges"),
+    "map": ("zoneprofile.cli.map", "calibrate an element map and extract a composition profile"),
+    "run": ("zoneprofile.cli.run", "run a whole campaign (TOML) and write the report"),
+}
+
+
+class _Parser(argparse.ArgumentParser):
+    """ArgumentParser whose usage errors are one plain line and exit code 2."""
+
+    def error(self, message):  # noqa: D401 - argparse API
+        sys.stderr.write(f"{self.prog}: {message} (see --help)\n")
+        raise SystemExit(2)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="zoneprofile",
+        description=(
+            "Composition profiles, zoning and diffusion timescales of zoned crystals, "
+            "from microprobe and LA-ICP-MS tables and element maps."
+        ),
+        epilog="Run 'zoneprofile COMMAND --help' for the options of a command.",
+    )
+    parser.add_argument("--version", action="version", version=f"zoneprofile {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name, (module_name, help_text) in COMMANDS.items():
+        module = importlib.import_module(module_name)
+        p = sub.add_parser(
+            name,
+            help=help_text,
+            description=getattr(module, "DESCRIPTION", help_text),
+            formatter_class=argparse.RawDescriptionHelpFormatter,
+        )
+        module.configure(p)
+        p.set_defaults(_run=module.run)
+    return parser
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``zoneprofile`` console script."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "_run", None) is None:
+        parser.print_help()
+        return 2
+    try:
+        code = args._run(args)
+    except InputError as exc:
+        sys.stderr.write(f"zoneprofile {args.command}: {exc}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write("zoneprofile: interrupted\n")
+        return 130
+    except Exception as exc:  # an internal error: one line, traceback on request
+        if os.environ.get("ZONEPROFILE_DEBUG"):
+            traceback.print_exc()
+        text = " ".join(str(exc).split()) or type(exc).__name__
+        sys.stderr.write(
+            f"zoneprofile {args.command}: internal error: {type(exc).__name__}: {text} "
+            "(set ZONEPROFILE_DEBUG=1 for details and please report it)\n"
+        )
+        return 1
+    return int(code or 0)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,13 @@
+"""`zoneprofile run` (being built)."""
+
+from zoneprofile._validation import InputError
+
+DESCRIPTION = "not available yet"
+
+
+def configure(parser):
+    pass
+
+
+def run(args):
+    raise InputError("'run' is not available in this version yet")

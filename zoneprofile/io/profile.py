@@ -1,0 +1,221 @@
+"""Reading a composition profile: a ``recalc`` output or any table with ``distance_um``.
+
+A profile table has one row per point, a ``distance_um`` column measured from the
+rim (0 at the rim, increasing toward the core) and value columns such as ``An``,
+``Fo``, ``Mg_ppm``. Optional columns: ``point`` (label), ``qc`` (``ok`` or the
+reasons a point was flagged), ``<column>_sd`` (per-point 1-sigma precision).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from zoneprofile._validation import InputError, require_file
+
+__all__ = ["read_profile", "read_text_table"]
+
+_ENCODINGS = ("utf-8-sig", "cp1252", "latin-1")
+
+
+def _decode(path: Path) -> str:
+    raw = path.read_bytes()
+    if b"\x00" in raw[:4096]:
+        message = "looks like a binary file, expected a text table (CSV/TSV) or .xlsx"
+        raise InputError(message, path=path)
+    for enc in _ENCODINGS:
+        try:
+            return raw.decode(enc)
+        except UnicodeDecodeError:
+            continue
+    message = "cannot decode the file as text"  # pragma: no cover - latin-1 decodes anything
+    raise InputError(message, path=path)
+
+
+def _sniff_delimiter(lines: list[str]) -> str:
+    sample = [ln for ln in lines if ln.strip()][:20]
+    best, best_score = ",", -1
+    for delim in ("\t", ";", ","):
+        counts = [ln.count(delim) for ln in sample]
+        if not counts or max(counts) == 0:
+            continue
+        # a delimiter that splits most lines into the same number of fields wins
+        common = max(set(counts), key=counts.count)
+        score = counts.count(common) * 100 + common
+        if common > 0 and score > best_score:
+            best, best_score = delim, score
+    return best
+
+
+def read_text_table(path, *, header_contains=None) -> tuple[pd.DataFrame, int]:
+    """Read a delimited text table as strings.
+
+    Parameters
+    ----------
+    path : path-like
+        CSV, TSV or semicolon-separated file (decimal commas allowed with ``;``).
+    header_contains : iterable of str, optional
+        Lower-case names, one of which must appear in the header row; lines above
+        it (titles) are skipped. Default: the first non-empty line is the header.
+
+    Returns
+    -------
+    frame : DataFrame of str
+        Cells as stripped strings ('' for blank); a ``_row`` column holds each
+        row's 1-based line number in the file.
+    header_line : int
+        1-based line number of the header.
+    """
+    p = require_file(path)
+    text = _decode(p)
+    lines = text.splitlines()
+    if not any(ln.strip() for ln in lines):
+        raise InputError("file holds no text", path=p)
+    delim = _sniff_delimiter(lines)
+    rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delim))
+    header_idx = None
+    wanted = None if header_contains is None else {w.lower() for w in header_contains}
+    for i, row in enumerate(rows):
+        cells = [c.strip().lower() for c in row]
+        if not any(cells):
+            continue
+        if wanted is None or wanted.intersection(cells):
+            header_idx = i
+            break
+    if header_idx is None:
+        need = ", ".join(sorted(wanted)) if wanted else "a header"
+        message = f"no header row found; expected a row naming {need}"
+        raise InputError(message, path=p)
+    header = [c.strip() for c in rows[header_idx]]
+    seen = {}
+    for j, name in enumerate(header):
+        if name and name in seen:
+            message = f"duplicate column '{name}' (columns {seen[name] + 1} and {j + 1}); rename or remove one"
+            raise InputError(message, path=p, row=header_idx + 1)
+        seen[name] = j
+    records, line_numbers = [], []
+    for i in range(header_idx + 1, len(rows)):
+        row = rows[i]
+        if not any(c.strip() for c in row):
+            continue
+        cells = [c.strip() for c in row] + [""] * max(0, len(header) - len(row))
+        records.append(cells[: len(header)])
+        line_numbers.append(i + 1)
+    frame = pd.DataFrame(records, columns=header, dtype=object)
+    if delim == ";":
+        frame = frame.map(lambda s: s.replace(",", ".") if isinstance(s, str) else s)
+    frame["_row"] = line_numbers
+    return frame, header_idx + 1
+
+
+def _read_any(path: Path, sheet, header_contains) -> pd.DataFrame:
+    if path.suffix.lower() in (".xlsx", ".xlsm"):
+        from zoneprofile.io import tables
+
+        return tables.read_sheet_as_text(path, sheet=sheet, header_contains=header_contains)
+    frame, _ = read_text_table(path, header_contains=header_contains)
+    return frame
+
+
+def _to_float(frame: pd.DataFrame, column: str, path: Path, *, allow_blank: bool) -> np.ndarray:
+    out = np.empty(len(frame))
+    for k, (cell, row) in enumerate(zip(frame[column], frame["_row"])):
+        s = "" if cell is None else str(cell).strip()
+        if s == "" or s.lower() == "nan":
+            if allow_blank:
+                out[k] = np.nan
+                continue
+            raise InputError("empty cell where a number is needed", path=path, row=int(row), column=column)
+        try:
+            x = float(s)
+        except ValueError:
+            raise InputError("not a number", path=path, row=int(row), column=column, text=s) from None
+        if not np.isfinite(x) or abs(x) > 1e12:
+            raise InputError("not a finite, plausible number", path=path, row=int(row), column=column, text=s)
+        out[k] = x
+    return out
+
+
+def read_profile(
+    path,
+    *,
+    columns=("An",),
+    optional=(),
+    include_flagged: bool = False,
+    sheet=None,
+    allow_blank=(),
+) -> pd.DataFrame:
+    """Read a profile table and check it.
+
+    Parameters
+    ----------
+    path : path-like
+        CSV/TSV/semicolon text or .xlsx with a ``distance_um`` column.
+    columns : sequence of str
+        Value columns that must be present and numeric in every kept row.
+    optional : sequence of str
+        Value columns read when present (numeric, blanks become NaN).
+    include_flagged : bool
+        Keep points whose ``qc`` is not ``ok`` (default: leave them out).
+    allow_blank : sequence of str
+        Required columns in which blank cells are allowed (become NaN).
+
+    Returns
+    -------
+    DataFrame
+        ``distance_um``, the value columns as float, ``point`` and ``qc`` as
+        text and ``_row`` (line number in the file), sorted as in the file.
+
+    Raises
+    ------
+    InputError
+        Missing file or column, a non-numeric cell (row, column and text named),
+        unsorted or duplicated distances, fewer than two points.
+    """
+    p = require_file(path, what="profile table")
+    frame = _read_any(p, sheet, header_contains=("distance_um",))
+    names = {c.strip(): c for c in frame.columns}
+    if "distance_um" not in names:
+        message = "no 'distance_um' column; give a recalc output or a table with distance from the rim in µm"
+        raise InputError(message, path=p)
+    for col in columns:
+        if col not in names:
+            have = ", ".join(c for c in frame.columns if c != "_row")
+            message = f"no '{col}' column (columns present: {have})"
+            raise InputError(message, path=p)
+    if "qc" in names and not include_flagged:
+        keep = frame[names["qc"]].astype(str).str.strip().str.lower().isin(["ok", ""])
+        frame = frame[keep.to_numpy()].reset_index(drop=True)
+    if len(frame) == 0:
+        message = "no usable points (all rows empty or flagged by QC)"
+        raise InputError(message, path=p)
+    out = pd.DataFrame({"_row": frame["_row"].astype(int).to_numpy()})
+    out["distance_um"] = _to_float(frame, names["distance_um"], p, allow_blank=False)
+    for col in columns:
+        out[col] = _to_float(frame, names[col], p, allow_blank=col in allow_blank)
+    for col in optional:
+        if col in names and col not in out:
+            out[col] = _to_float(frame, names[col], p, allow_blank=True)
+    out["point"] = frame[names["point"]].astype(str).to_numpy() if "point" in names else [
+        str(r) for r in out["_row"]
+    ]
+    out["qc"] = frame[names["qc"]].astype(str).to_numpy() if "qc" in names else "ok"
+    d = out["distance_um"].to_numpy()
+    if len(d) >= 2:
+        diffs = np.diff(d)
+        if np.any(diffs == 0):
+            k = int(np.flatnonzero(diffs == 0)[0]) + 1
+            message = f"duplicated distance {d[k]:g} µm; each point needs its own position"
+            raise InputError(message, path=p, row=int(out["_row"][k]), column="distance_um")
+        if np.any(diffs < 0):
+            k = int(np.flatnonzero(diffs < 0)[0]) + 1
+            message = (
+                f"distances must increase from the rim down the table; {d[k]:g} µm follows {d[k - 1]:g} µm "
+                "(sort the table or use 'zoneprofile recalc' to put the rim first)"
+            )
+            raise InputError(message, path=p, row=int(out["_row"][k]), column="distance_um")
+    return out

@@ -62,13 +62,16 @@ def configure(parser):
     parser.add_argument("--step-um", type=str, default=None, metavar="S",
                         help="point spacing in µm, for tables with neither stage X/Y nor a distance column")
     parser.add_argument("--sample", default=None, help="sample name (default: a Sample column or the file name)")
-    parser.add_argument("--crystal", default=None, help="crystal name (default: a Crystal column or the file name)")
+    parser.add_argument("--crystal", default=None, help="crystal name (default: a Crystal column or the file name); when a Crystal column "
+                             "holds several crystals, the one whose rows to read")
     parser.add_argument("--beam-um", type=str, default=None, metavar="W", help="beam (spot) diameter in µm, kept as metadata")
     parser.add_argument("--total-range", default=None, metavar="LOW,HIGH",
                         help="accepted oxide total in wt%% (default 98.5,101.5)")
     parser.add_argument("--qc", action="append", default=[], metavar="KEY=LOW,HIGH",
-                        help="override a QC window or limit, e.g. m_site=0.93,1.07 or max_or_plagioclase=20 "
-                             "(see docs/recalculation.md for the keys); repeatable")
+                        help="override a QC window or limit, e.g. m_site=0.93,1.07 or max_or_plagioclase=20; "
+                             "keys: feldspar cations, t_site, m_site, al_vs_an, max_mafic, max_or_plagioclase, "
+                             "max_an_alkali; olivine si, cations; pyroxene cations_fe2, si (defaults in "
+                             "docs/recalculation.md); repeatable")
     parser.add_argument("--below-detection", default="zero", metavar="zero|flag|raise",
                         help="below-detection oxide cells: count as 0 and list them (zero, default); "
                              "also flag points where a needed oxide is below detection (flag); refuse the file (raise)")
@@ -105,7 +108,11 @@ def _summary(tr, out) -> str:
     kinds: dict[str, int] = {}
     for q in flagged["qc"]:
         for reason in str(q).split("; "):
-            word = reason.split(" ")[0] if not reason.startswith("not ") else reason
+            if reason.startswith("not "):
+                word = reason.split("?")[0] + "?"
+            else:
+                word = reason.split(" ")[0]
+                word = {"Al": "Al vs An", "same": "same position"}.get(word, word)
             kinds[word] = kinds.get(word, 0) + 1
     lines = [f"read {n} analyses from {tr.source} ({tr.mineral}); distance from {tr.position_from}"
              + (f", largest offset from the line {tr.max_offset_um:.2f} µm" if tr.position_from == "stage X/Y" else "")]

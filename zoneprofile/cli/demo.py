@@ -26,8 +26,9 @@ def configure(parser):
     parser.add_argument("--out", default="zoneprofile-demo", metavar="DIR",
                         help="output folder (default: zoneprofile-demo; must not exist unless --force)")
     parser.add_argument("--force", action="store_true", help="replace an existing output folder")
-    parser.add_argument("--workers", type=int, default=1, metavar="N",
-                        help="crystals computed in parallel by N local processes (default 1)")
+    parser.add_argument("--workers", type=int, default=None, metavar="N",
+                        help="crystals computed in parallel by N local processes (default: the number of "
+                             "processors, at most 4)")
     parser.add_argument("--seed", type=int, default=None, metavar="N",
                         help="seed of the forward model (default: the fixed demo seed)")
     parser.add_argument("--quiet", action="store_true", help="no progress bar and no summary on stderr")
@@ -44,8 +45,11 @@ def run(args):
     from zoneprofile.cli.run import report_summary
     from zoneprofile.demo import CAMPAIGN_NAME, DEMO_SEED, make_demo
 
-    if args.workers < 1:
-        raise InputError(f"--workers must be at least 1, got {args.workers}")
+    import os
+
+    workers = min(4, os.cpu_count() or 1) if args.workers is None else args.workers
+    if workers < 1:
+        raise InputError(f"--workers must be at least 1, got {workers}")
     seed = DEMO_SEED if args.seed is None else args.seed
     if seed < 0:
         raise InputError(f"--seed must be 0 or more, got {seed}")
@@ -58,7 +62,7 @@ def run(args):
     with atomic_folder(out, force=args.force) as tmp:
         made = make_demo(tmp / "campaign", seed=seed)
         campaign = load_campaign(made["campaign"])
-        summary = execute_campaign(campaign, workers=args.workers, progress=not args.quiet,
+        summary = execute_campaign(campaign, workers=workers, progress=not args.quiet,
                                    campaign_path_shown=f"campaign/{CAMPAIGN_NAME}")
         write_campaign_outputs(summary, tmp)
     summary.out_dir = out

@@ -1,13 +1,339 @@
-"""`zoneprofile fit` (being built)."""
+"""`zoneprofile fit`: fit a diffusion model to the boundaries of a profile and date them."""
 
-from zoneprofile._validation import InputError
+from __future__ import annotations
 
-DESCRIPTION = "not available yet"
+DESCRIPTION = """\
+Fit the diffusion equation to one or more zone boundaries of a profile and turn
+the fitted D·t into a time at the given temperature, with Monte Carlo
+uncertainty over temperature, law parameters, analytical noise and (if given)
+obliquity of the traverse.
+
+The profile needs distance_um and the element column: Mg_ppm / Sr_ppm / Ba_ppm
+(feldspars), Fo or X_Fe (olivine), Mg_number (clinopyroxene), Ti_ppm (quartz).
+Plagioclase Mg, Sr, Ba also need An (in the same table or from --an-from).
+A column <name>_sd, when present, weights the fit.
+
+Diffusion timescales inform, and do not replace, hazard assessment, which
+belongs to the responsible observatory and local authorities.
+"""
+
+_PLOT_EXT = (".png", ".svg", ".pdf")
 
 
 def configure(parser):
-    pass
+    parser.add_argument("profile", metavar="PROFILE", help="profile table (CSV/TSV/XLSX) with distance_um")
+    parser.add_argument("--element", required=True, help="Mg, Sr, Ba, FeMg or Ti")
+    parser.add_argument("--mineral", required=True,
+                        help="plagioclase, alkali-feldspar, olivine, clinopyroxene or quartz")
+    parser.add_argument("--temperature-c", type=float, required=True, metavar="T",
+                        help="storage temperature, °C")
+    parser.add_argument("--temperature-sd-c", type=float, default=0.0, metavar="S",
+                        help="1-sigma uncertainty of the temperature, °C (default 0)")
+    parser.add_argument("--boundary-um", type=float, nargs="+", metavar="X",
+                        help="boundary position(s), µm from the rim; each is fitted separately and held "
+                             "fixed (default: the largest step, its position fitted)")
+    parser.add_argument("--boundary-window-um", type=float, metavar="W",
+                        help="fit each boundary position within ±W µm instead of holding it fixed")
+    parser.add_argument("--beam-um", type=float, metavar="W",
+                        help="spot diameter in µm: the full width at half maximum of a Gaussian beam, "
+                             "or the full width of a square spot with --beam-shape square")
+    parser.add_argument("--beam-shape", choices=("gaussian", "square"), default="gaussian",
+                        help="spot profile: gaussian (electron beam) or square (LA-ICP-MS); default gaussian")
+    parser.add_argument("--law", metavar="ID", help="diffusion law id (see 'zoneprofile laws'; default per element)")
+    parser.add_argument("--partition", default="bindeman1998", metavar="MODEL",
+                        help="plagioclase-melt partition model (default bindeman1998)")
+    parser.add_argument("--draws", type=int, default=1000, metavar="N", help="Monte Carlo draws (default 1000)")
+    parser.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0)")
+    parser.add_argument("--fo2-pa", type=float, metavar="P", help="oxygen fugacity, Pa (olivine Fe-Mg)")
+    parser.add_argument("--pressure-mpa", type=float, metavar="P", help="pressure, MPa (default: the law's 0.1 MPa)")
+    parser.add_argument("--direction", metavar="DIR", help="crystallographic direction of the traverse, e.g. [001]")
+    parser.add_argument("--an-from", metavar="TABLE",
+                        help="read An from this second table (e.g. a microprobe traverse of the same line)")
+    parser.add_argument("--offset-um", type=float, default=0.0, metavar="D",
+                        help="added to the distances of --an-from to align it with PROFILE (default 0)")
+    parser.add_argument("--an-beam-um", type=float, metavar="W",
+                        help="spot diameter (Gaussian FWHM) of the An analyses (default: --beam-um when An is "
+                             "in PROFILE, none for --an-from)")
+    parser.add_argument("--obliquity-deg", type=float, metavar="PSI",
+                        help="angle between the traverse and the normal of the boundary trace in the section")
+    parser.add_argument("--obliquity-sd-deg", type=float, default=0.0, metavar="S",
+                        help="1-sigma of --obliquity-deg (default 0)")
+    parser.add_argument("--dip-deg", type=float, metavar="PHI",
+                        help="angle between the boundary plane's normal and the section normal (default 90)")
+    parser.add_argument("--rim", choices=("open", "closed"), default="open",
+                        help="rim held in equilibrium with the outer melt (open, default) or zero flux (closed)")
+    parser.add_argument("--geometry", choices=("planar", "cylinder", "sphere"), default="planar",
+                        help="crystal geometry (default planar); curved ones need --radius-um")
+    parser.add_argument("--radius-um", type=float, metavar="R", help="crystal radius for cylinder/sphere, µm")
+    parser.add_argument("--cooling-c-per-day", type=float, metavar="R",
+                        help="linear cooling from --temperature-c at R °C per day (non-isothermal)")
+    parser.add_argument("--path", metavar="TABLE",
+                        help="temperature-time path table with columns time_days, temperature_c (non-isothermal)")
+    parser.add_argument("--include-flagged", action="store_true", help="keep points whose qc is not 'ok'")
+    parser.add_argument("-o", "--output", required=True, metavar="FIT.json", help="results (JSON)")
+    parser.add_argument("--plot", metavar="FIG", help="figure of data, fit, initial profile and band (.png/.svg/.pdf)")
+    parser.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
+
+def _value_column(frame_columns, element, mineral, path):
+    from zoneprofile._validation import InputError
+    from zoneprofile.diffusion.fitting import ELEMENT_COLUMNS
+
+    col = ELEMENT_COLUMNS.get((element, mineral))
+    if col is None:
+        raise InputError(f"no diffusion model for {element} in {mineral}; see 'zoneprofile laws'")
+    if col == "Fo" and "Fo" not in frame_columns and "X_Fe" in frame_columns:
+        return "X_Fe"
+    if col not in frame_columns:
+        raise InputError(f"no '{col}' column: {element} in {mineral} is read from '{col}'", path=path)
+    return col
+
+
+def _header(path):
+    from zoneprofile.io.profile import read_text_table
+
+    if str(path).lower().endswith((".xlsx", ".xlsm")):
+        from zoneprofile.io.profile import read_profile
+
+        return set(read_profile(path, columns=(), include_flagged=True).columns) | _xlsx_header(path)
+    frame, _ = read_text_table(path, header_contains=("distance_um",))
+    return {c.strip() for c in frame.columns}
+
+
+def _xlsx_header(path):
+    try:
+        from zoneprofile.io import tables
+
+        return {c.strip() for c in tables.read_sheet_as_text(path, header_contains=("distance_um",)).columns}
+    except Exception:  # noqa: BLE001 - fall back to read_profile's own error
+        return set()
+
+
+def _check_column(frame, col, path, *, low=0.0, high=None, what="concentration"):
+    import numpy as np
+
+    from zoneprofile._validation import InputError
+
+    values = frame[col].to_numpy(float)
+    bad = np.flatnonzero(values < low) if high is None else np.flatnonzero((values < low) | (values > high))
+    if bad.size:
+        k = int(bad[0])
+        rng = f">= {low:g}" if high is None else f"between {low:g} and {high:g}"
+        message = f"{what} must be {rng}"
+        raise InputError(message, path=path, row=int(frame["_row"].iloc[k]), column=col, text=f"{values[k]:g}")
+    return values
+
+
+def _read_path_table(path):
+    from zoneprofile._validation import InputError
+    from zoneprofile.diffusion.paths import TablePath
+    from zoneprofile.io.profile import _to_float, read_text_table
+
+    frame, _ = read_text_table(path, header_contains=("time_days",))
+    for col in ("time_days", "temperature_c"):
+        if col not in frame.columns:
+            raise InputError(f"no '{col}' column in the temperature path table", path=path)
+    t = _to_float(frame, "time_days", path, allow_blank=False)
+    temp = _to_float(frame, "temperature_c", path, allow_blank=False)
+    try:
+        return TablePath(tuple(t), tuple(temp))
+    except InputError as exc:
+        raise InputError(exc.message, path=path) from None
+
+
+def _import_lmfit_lean():
+    """Import lmfit in this command's process without its optional matplotlib import.
+
+    lmfit imports matplotlib at start-up only to offer plotting, which this command
+    does not use (its figure is drawn by zoneprofile, and only with --plot). Blocking
+    it for the duration of the import saves about 0.3 s of start-up; the block is
+    lifted at once, so a later ``import matplotlib`` works.
+    """
+    import sys
+
+    if "lmfit" in sys.modules or "matplotlib" in sys.modules:
+        return
+    sys.modules["matplotlib"] = None
+    try:
+        import lmfit  # noqa: F401
+    finally:
+        if sys.modules.get("matplotlib", 0) is None:
+            del sys.modules["matplotlib"]
 
 
 def run(args):
-    raise InputError("'fit' is not available in this version yet")
+    import math
+    from pathlib import Path
+
+    from zoneprofile import __version__
+    from zoneprofile._output import check_outputs, write_bytes, write_json
+    from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
+    from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
+
+    element = normalise_element(args.element)
+    mineral = normalise_mineral(args.mineral)
+    if element not in ELEMENTS:
+        raise InputError(f"unknown element '{args.element}'; choose one of: {', '.join(ELEMENTS)}")
+    if mineral not in MINERALS:
+        raise InputError(f"unknown mineral '{args.mineral}'; choose one of: {', '.join(MINERALS)}")
+    require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
+    require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
+    if args.draws < 10 or args.draws > 1_000_000:
+        raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
+    for name in ("beam_um", "an_beam_um", "radius_um", "boundary_window_um"):
+        value = getattr(args, name)
+        if value is not None:
+            require_positive(value, "--" + name.replace("_", "-"), allow_zero=name != "radius_um")
+    if args.fo2_pa is not None:
+        require_positive(args.fo2_pa, "--fo2-pa")
+    if args.pressure_mpa is not None:
+        require_positive(args.pressure_mpa, "--pressure-mpa")
+    if args.geometry != "planar" and args.radius_um is None:
+        raise InputError(f"--geometry {args.geometry} needs --radius-um")
+    if args.cooling_c_per_day is not None and args.path is not None:
+        raise InputError("give either --cooling-c-per-day or --path, not both")
+    if args.obliquity_deg is not None:
+        require_in_range(args.obliquity_deg, "--obliquity-deg", 0.0, 89.0, unit="°")
+    if args.dip_deg is not None:
+        require_in_range(args.dip_deg, "--dip-deg", 1.0, 90.0, unit="°")
+    plot = args.plot
+    if plot is not None and Path(plot).suffix.lower() not in _PLOT_EXT:
+        raise InputError(f"unsupported figure type '{Path(plot).suffix}'; use {', '.join(_PLOT_EXT)}", path=plot)
+    out = Path(args.output)
+    if out.suffix.lower() != ".json":
+        raise InputError("the output must be a .json file", path=out)
+    check_outputs(out, plot, force=args.force)
+    profile_path = require_file(args.profile, what="profile table")
+
+    import hashlib
+
+    import numpy as np
+
+    from zoneprofile.diffusion import LinearCooling, fit_boundary
+    from zoneprofile.io.profile import read_profile
+
+    if plot is None:
+        _import_lmfit_lean()
+    header = _header(profile_path)
+    col = _value_column(header, element, mineral, profile_path)
+    needs_an = mineral == "plagioclase" and element in ("Mg", "Sr", "Ba")
+    optional = [f"{col}_sd"]
+    if needs_an and args.an_from is None:
+        if "An" not in header:
+            raise InputError(
+                f"no 'An' column: {element} in plagioclase needs An along the profile; add an An column "
+                "or give --an-from TABLE", path=profile_path)
+        optional.append("An")
+    frame = read_profile(profile_path, columns=(col,), optional=optional, include_flagged=args.include_flagged)
+    if col == "X_Fe":
+        _check_column(frame, col, profile_path, low=0.0, high=1.0, what="X_Fe")
+        values = 100.0 * (1.0 - frame[col].to_numpy(float))
+    elif col == "Fo":
+        values = _check_column(frame, col, profile_path, low=0.0, high=100.0, what="Fo (mol%)")
+    else:
+        values = _check_column(frame, col, profile_path, what="concentration")
+    distance = frame["distance_um"].to_numpy(float)
+    value_sd = None
+    if f"{col}_sd" in frame and np.all(np.isfinite(frame[f"{col}_sd"].to_numpy(float))):
+        value_sd = _check_column(frame, f"{col}_sd", profile_path, what="1-sigma precision")
+        if np.any(value_sd <= 0):
+            k = int(np.flatnonzero(value_sd <= 0)[0])
+            raise InputError("1-sigma precision must be > 0", path=profile_path,
+                             row=int(frame["_row"].iloc[k]), column=f"{col}_sd")
+        if col == "X_Fe":
+            value_sd = 100.0 * value_sd
+    an = an_x = None
+    an_beam = args.an_beam_um
+    an_source = None
+    if needs_an:
+        if args.an_from is not None:
+            an_path = require_file(args.an_from, what="An table")
+            an_frame = read_profile(an_path, columns=("An",), include_flagged=args.include_flagged)
+            an = _check_column(an_frame, "An", an_path, low=0.0, high=100.0, what="An (mol%)")
+            an_x = an_frame["distance_um"].to_numpy(float) + float(args.offset_um)
+            if an_x[0] > distance[0] + 1e-9 and an_x[-1] < distance[-1] - 1e-9 or an.size < 2:
+                pass
+            if an_x[-1] < distance[0] or an_x[0] > distance[-1]:
+                raise InputError("the An table does not overlap the profile after --offset-um; check the offset",
+                                 path=an_path)
+            an_source = {"path": str(an_path), "sha256": hashlib.sha256(an_path.read_bytes()).hexdigest(),
+                         "offset_um": args.offset_um, "an_beam_um": an_beam}
+        else:
+            an_col = frame["An"].to_numpy(float)
+            blank = np.flatnonzero(~np.isfinite(an_col))
+            if blank.size:
+                k = int(blank[0])
+                raise InputError("empty An cell; An is needed at every point (or use --an-from)",
+                                 path=profile_path, row=int(frame["_row"].iloc[k]), column="An")
+            an = _check_column(frame, "An", profile_path, low=0.0, high=100.0, what="An (mol%)")
+            an_x = distance
+            if an_beam is None:
+                an_beam = args.beam_um
+    path_obj = None
+    if args.cooling_c_per_day is not None:
+        require_positive(args.cooling_c_per_day, "--cooling-c-per-day", allow_zero=True)
+        path_obj = LinearCooling(args.temperature_c, args.cooling_c_per_day)
+    elif args.path is not None:
+        path_obj = _read_path_table(require_file(args.path, what="temperature path table"))
+
+    boundaries = sorted(args.boundary_um) if args.boundary_um else [None]
+    for b in boundaries:
+        if b is not None and not distance[0] <= b <= distance[-1]:
+            raise InputError(f"boundary {b:g} µm lies outside the profile ({distance[0]:g}–{distance[-1]:g} µm)",
+                             path=profile_path, column="distance_um")
+    fits = []
+    for k, b in enumerate(boundaries):
+        segment = None
+        if b is not None and len(boundaries) > 1:
+            lo = -math.inf if k == 0 else 0.5 * (boundaries[k - 1] + b)
+            hi = math.inf if k == len(boundaries) - 1 else 0.5 * (b + boundaries[k + 1])
+            segment = (lo, hi)
+        try:
+            result = fit_boundary(
+                distance, values, element=element, mineral=mineral, temperature_c=args.temperature_c,
+                temperature_sd_c=args.temperature_sd_c, an=an, an_distance_um=None if an_source is None else an_x,
+                an_beam_um=an_beam, boundary_um=b, boundary_window_um=args.boundary_window_um,
+                segment_um=segment, beam_um=args.beam_um, beam_shape=args.beam_shape, law=args.law,
+                partition=args.partition, draws=args.draws, seed=args.seed + k,
+                obliquity_deg=args.obliquity_deg, obliquity_sd_deg=args.obliquity_sd_deg, dip_deg=args.dip_deg,
+                value_sd=value_sd, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa,
+                direction=args.direction, rim=args.rim, geometry=args.geometry, radius_um=args.radius_um,
+                path=path_obj, value_name=col if col != "X_Fe" else "Fo",
+            )
+        except InputError as exc:
+            if exc.path is None:
+                raise InputError(exc.message, path=profile_path, row=exc.row, column=exc.column,
+                                 text=exc.text) from None
+            raise
+        fits.append(result)
+
+    document = {
+        "fits": [r.to_dict() for r in fits],
+        "input": {
+            "profile": str(profile_path),
+            "sha256": hashlib.sha256(profile_path.read_bytes()).hexdigest(),
+            "value_column": col,
+            "an_from": an_source,
+            "points": int(distance.size),
+            "options": {k: v for k, v in vars(args).items() if not k.startswith("_") and k != "force"},
+        },
+        "software": {"name": "zoneprofile", "version": __version__},
+        "caution": ("Diffusion timescales inform, and do not replace, hazard assessment, which belongs to "
+                    "the responsible observatory and local authorities."),
+    }
+    figure = None
+    if plot is not None:
+        from zoneprofile.diffusion._plot import fit_figure
+
+        figure = fit_figure(fits, value_label=_label(col, element), an=(an_x, an) if an is not None else None,
+                            fmt=Path(plot).suffix.lower()[1:])
+    write_json(out, document)
+    if figure is not None:
+        write_bytes(plot, figure)
+    for r in fits:
+        print(r.report())
+    return 0
+
+
+def _label(col, element):
+    return {"Fo": "Fo (mol%)", "X_Fe": "Fo (mol%)", "Mg_number": "Mg# (mol%)"}.get(col, f"{element} (ppm)")

@@ -58,6 +58,8 @@ def report_summary(summary, *, stream=None) -> None:
     """Print the run summary (and the failed crystals) on stderr."""
     stream = stream or sys.stderr
     stream.write(summary.line() + "\n")
+    for note in summary.notes:
+        stream.write(f"  note: {note}\n")
     for label, error in summary.failed:
         stream.write(f"  failed: {label}: {error}\n")
 

@@ -49,6 +49,8 @@ def configure(parser):
     parser.add_argument("--direction", metavar="DIR", help="crystallographic direction of the traverse, e.g. [001]")
     parser.add_argument("--an-from", metavar="TABLE",
                         help="read An from this second table (e.g. a microprobe traverse of the same line)")
+    parser.add_argument("--an", type=float, metavar="MOL",
+                        help="An (mol%%) at every point, for a profile without An known to be unzoned in An")
     parser.add_argument("--offset-um", type=float, default=0.0, metavar="D",
                         help="added to the distances of --an-from to align it with PROFILE (default 0)")
     parser.add_argument("--an-beam-um", type=float, metavar="W",
@@ -218,11 +220,15 @@ def run(args):
     col = _value_column(header, element, mineral, profile_path)
     needs_an = mineral == "plagioclase" and element in ("Mg", "Sr", "Ba")
     optional = [f"{col}_sd"]
-    if needs_an and args.an_from is None:
+    if args.an is not None:
+        require_in_range(args.an, "--an", 0.0, 100.0, unit="mol%")
+        if args.an_from is not None:
+            raise InputError("give either --an or --an-from, not both")
+    if needs_an and args.an_from is None and args.an is None:
         if "An" not in header:
             raise InputError(
-                f"no 'An' column: {element} in plagioclase needs An along the profile; add an An column "
-                "or give --an-from TABLE", path=profile_path)
+                f"no 'An' column: {element} in plagioclase needs An along the profile; add an An column, "
+                "give --an-from TABLE, or --an MOL if the crystal is unzoned in An", path=profile_path)
         optional.append("An")
     frame = read_profile(profile_path, columns=(col,), optional=optional, include_flagged=args.include_flagged)
     if col == "X_Fe":
@@ -246,13 +252,14 @@ def run(args):
     an_beam = args.an_beam_um
     an_source = None
     if needs_an:
-        if args.an_from is not None:
+        if args.an is not None and args.an_from is None:
+            an = np.full(distance.size, float(args.an))
+            an_x = distance
+        elif args.an_from is not None:
             an_path = require_file(args.an_from, what="An table")
             an_frame = read_profile(an_path, columns=("An",), include_flagged=args.include_flagged)
             an = _check_column(an_frame, "An", an_path, low=0.0, high=100.0, what="An (mol%)")
             an_x = an_frame["distance_um"].to_numpy(float) + float(args.offset_um)
-            if an_x[0] > distance[0] + 1e-9 and an_x[-1] < distance[-1] - 1e-9 or an.size < 2:
-                pass
             if an_x[-1] < distance[0] or an_x[0] > distance[-1]:
                 raise InputError("the An table does not overlap the profile after --offset-um; check the offset",
                                  path=an_path)

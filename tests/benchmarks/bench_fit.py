@@ -1,0 +1,213 @@
+"""Benchmark of the diffusion fit (run by hand: python tests/benchmarks/bench_fit.py).
+
+Prints, measured side by side in one run:
+
+1. One model evaluation inside a fit at N = 400 cells on the An-coupled Mg
+   problem (Costa et al. 2003 law, Bindeman et al. 1998 A for Mg, 900 °C):
+   zoneprofile's spectral evaluator vs scipy.integrate.solve_ivp (BDF, sparse
+   Jacobian, method of lines on the same finite-volume operator) at matched
+   accuracy. Goal: >= 100x faster.
+2. Whole processes, start-up included: ``zoneprofile fit ... --draws 2000`` vs
+   a bare general-purpose best fit (solve_ivp inside
+   scipy.optimize.least_squares, no uncertainty). Goal: <= 1.5x.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+pytestmark = pytest.mark.benchmark
+
+R = 8.314462618
+N = 400
+
+
+def _an_problem():
+    from zoneprofile.diffusion import get_law, partition_parameters
+    from zoneprofile.diffusion.grid import uniform_grid
+    from zoneprofile.diffusion.solver import LinearDiffusion
+
+    law = get_law("costa2003-mg-plag")
+    t_c = 900.0
+    t_k = t_c + 273.15
+    g = uniform_grid(120.0, N)
+    x_an = np.where(g.centres_um < 50.0, 0.72, 0.52)
+    a, b = partition_parameters("Mg")
+    d = law.d_m2_s(t_c, x_an=x_an)
+    d_ref = float(law.d_m2_s(t_c, x_an=0.62))
+    w = np.exp(a * (x_an - 0.62) / (R * t_k))
+    k = np.exp((a * x_an + b) / (R * t_k))
+    c0 = np.where(g.centres_um < 50.0, 12000.0, 8000.0) * k
+    op = LinearDiffusion(g, d / d_ref, weight=w, rim="closed")
+    return g, op, c0
+
+
+def _mol_rhs(op):
+    """dC/dt = M C with the same finite-volume operator, as a sparse matrix."""
+    from scipy.sparse import diags
+
+    m = op._m
+    w = op.weight
+    # m du/dt = -L u, u = C/w  ->  dC/dt = -W M^-1 L W^-1 C
+    diag = -op._diag_l / m
+    upper = -op._off_l / m[:-1] / w[1:] * w[:-1]
+    low = -op._off_l / m[1:] / w[:-1] * w[1:]
+    return diags([low, diag, upper], [-1, 0, 1], format="csr")
+
+
+def bench_evaluation():
+    from scipy.integrate import solve_ivp
+
+    from zoneprofile.diffusion._blas import single_thread
+
+    g, op, c0 = _an_problem()
+    x_pts = np.arange(1.0, 110.0, 2.0)
+    from zoneprofile.diffusion.resolution import beam_matrix
+
+    B = beam_matrix(g, x_pts, beam_um=4.0)
+    tau = 30.0  # µm², D_ref·t
+    from zoneprofile.diffusion.solver import LinearDiffusion
+
+    with single_thread():
+        t = time.perf_counter()
+        for _ in range(5):
+            LinearDiffusion(g, op.d_rel, weight=op.weight, rim="closed")
+        decomp_cost = (time.perf_counter() - t) / 5
+        t = time.perf_counter()
+        f = op.sampler(B)
+        setup_cost = time.perf_counter() - t
+        reps = 3000
+        t = time.perf_counter()
+        for _ in range(reps):
+            ours = f(c0, tau)
+        ours_cost = (time.perf_counter() - t) / reps
+    A = _mol_rhs(op)
+    exact = B @ op.evolve(c0, tau)
+    err_ours = np.max(np.abs(ours - exact) / np.abs(exact))
+    print(f"[1] one model evaluation, N = {N} cells, An-coupled Mg, {x_pts.size} spots (4 µm beam)")
+    print(f"    zoneprofile spectral evaluator : {ours_cost * 1e6:9.1f} µs   (exact in time; max rel. "
+          f"difference to the dense evolution {err_ours:.1e})")
+    print(f"    once per temperature           : {decomp_cost * 1e3:9.1f} ms   eigendecomposition, "
+          f"+ {setup_cost * 1e3:.1f} ms spot projection")
+    ratios = []
+    for rtol in (1e-7, 1e-4):
+        t = time.perf_counter()
+        reps_ivp = 5
+        for _ in range(reps_ivp):
+            sol = solve_ivp(lambda s, c: A @ c, (0.0, tau), c0, method="BDF", jac=A, rtol=rtol,
+                            atol=rtol * 1e-2 * c0.max())
+        ivp_cost = (time.perf_counter() - t) / reps_ivp
+        err_ivp = np.max(np.abs(B @ sol.y[:, -1] - exact) / np.abs(exact))
+        ratios.append(ivp_cost / ours_cost)
+        print(f"    solve_ivp BDF, sparse Jacobian : {ivp_cost * 1e6:9.1f} µs   rtol {rtol:g}: max rel. error "
+              f"{err_ivp:.1e} -> ratio {ivp_cost / ours_cost:6.0f} x   (goal >= 100 x)")
+    amortised = ours_cost + decomp_cost / 100
+    print(f"    with the decomposition shared by 100 evaluations (one fit): {amortised * 1e6:.0f} µs per "
+          f"evaluation, ratio {min(ratios) * ours_cost / amortised:.0f} x at rtol 1e-4")
+    return min(ratios)
+
+
+_BARE = textwrap.dedent(
+    """
+    import sys
+    import numpy as np
+    from scipy.integrate import solve_ivp
+    from scipy.optimize import least_squares
+    from scipy.sparse import diags
+
+    R = 8.314462618
+    data = np.genfromtxt(sys.argv[1], delimiter=",", names=True)
+    x, y, an = data["distance_um"], data["Mg_ppm"], data["An"] / 100.0
+    T = 900.0 + 273.15
+    n = 400
+    L = 120.0
+    h = L / n
+    xc = (np.arange(n) + 0.5) * h
+    xan = np.interp(xc, x, an)
+    xan = np.where(xc < 40.0, xan[xc < 40.0].mean(), xan[xc >= 40.0].mean())
+    A, B = -26100.0, -25700.0
+    d = 2.92 * 10 ** (-4.1 * xan - 3.1) * np.exp(-266000.0 / (R * T)) * 1e12
+    df = 2 * d[1:] * d[:-1] / (d[1:] + d[:-1])
+    dx = np.diff(xan) / h
+    K = np.exp((A * xan + B) / (R * T))
+    # flux_i+1/2 = -df (c_i+1 - c_i)/h + (A/RT) df (c_i + c_i+1)/2 dX/h
+    main = np.zeros(n)
+    main[:-1] += -df / h**2 - A / (R * T) * df * 0.5 * dx / h
+    main[1:] += -df / h**2 + A / (R * T) * df * 0.5 * dx / h
+    M = diags([df / h**2 + A / (R * T) * df * 0.5 * dx / h, main, df / h**2 - A / (R * T) * df * 0.5 * dx / h],
+              [-1, 0, 1], format="csr")
+    sig = 4.0 / 2.3548
+    from scipy.special import ndtr
+    faces = np.arange(n + 1) * h
+    W = np.diff(ndtr((faces[None, :] - x[:, None]) / sig), axis=1)
+    W /= W.sum(1, keepdims=True)
+
+    def model(p):
+        log_t, m_out, m_in = p
+        c0 = np.where(xc < 40.0, m_out, m_in) * K
+        sol = solve_ivp(lambda t, c: M @ c, (0.0, 10 ** log_t), c0, method="BDF", jac=M, rtol=1e-6,
+                        atol=1e-9 * c0.max())
+        return W @ sol.y[:, -1]
+
+    # a sensible start (about 12 days; melts from the plateaus), as a user would give
+    fit = least_squares(lambda p: model(p) - y, [6.0, 11000.0, 8500.0], x_scale=[0.1, 100.0, 100.0])
+    print("bare best fit:", fit.x, "evaluations", fit.nfev)
+    """
+)
+
+
+def bench_process():
+    from zoneprofile.diffusion import synthetic_boundary_profile
+
+    folder = Path(tempfile.mkdtemp(prefix="bench-fit-"))
+    data, truth = synthetic_boundary_profile(seed=1, element="Mg", mineral="plagioclase", temperature_c=900.0,
+                                             time_days=30.0, boundary_um=40.0, outer=12000.0, inner=8000.0,
+                                             an_outer=72.0, an_inner=52.0, beam_um=4.0, noise_fraction=0.015)
+    prof = folder / "mg.csv"
+    with open(prof, "w") as fh:
+        fh.write("distance_um,Mg_ppm,An\n")
+        for row in zip(data["distance_um"], data["value"], data["An"]):
+            fh.write(",".join(f"{v:.6g}" for v in row) + "\n")
+    bare = folder / "bare_fit.py"
+    bare.write_text(_BARE)
+    cmd_ours = [sys.executable, "-m", "zoneprofile", "fit", str(prof), "--element", "Mg", "--mineral",
+                "plagioclase", "--temperature-c", "900", "--temperature-sd-c", "15", "--beam-um", "4",
+                "--boundary-um", "40", "--draws", "2000", "-o", str(folder / "FIT.json"), "--force"]
+    cmd_bare = [sys.executable, str(bare), str(prof)]
+    times = {"ours": [], "bare": []}
+    for _ in range(3):  # interleaved, best of three each
+        for key, cmd in (("ours", cmd_ours), ("bare", cmd_bare)):
+            t = time.perf_counter()
+            proc = subprocess.run(cmd, capture_output=True, text=True, env=os.environ.copy())
+            times[key].append(time.perf_counter() - t)
+            if proc.returncode != 0:
+                raise SystemExit(f"{key} failed: {proc.stderr}")
+            if key == "bare":
+                bare_out = proc.stdout.strip()
+    ours_t, bare_t = min(times["ours"]), min(times["bare"])
+    print("[2] whole processes, start-up included (best of 3, interleaved)")
+    print(f"    zoneprofile fit --draws 2000 (full uncertainty) : {ours_t:6.2f} s   runs {', '.join(f'{v:.2f}' for v in times['ours'])}")
+    print(f"    bare solve_ivp + least_squares best fit         : {bare_t:6.2f} s   runs {', '.join(f'{v:.2f}' for v in times['bare'])}")
+    print(f"    ratio                                           : {ours_t / bare_t:6.2f} x   (goal <= 1.5 x)")
+    print(f"    ({bare_out})")
+    return ours_t / bare_t
+
+
+def test_benchmark():  # pragma: no cover - run by hand
+    bench_evaluation()
+    bench_process()
+
+
+if __name__ == "__main__":
+    print(f"machine: {os.cpu_count()} cores; load average {os.getloadavg()}")
+    bench_evaluation()
+    bench_process()

@@ -1,0 +1,585 @@
+r"""Fitting a diffusion model to one boundary and dating it.
+
+The fitted quantities are ``log10_dt_m2`` (log10 of D_ref·t in m², D_ref the law
+at the reference composition of the boundary and the nominal temperature), the
+boundary position ``boundary_um`` and two values: plateau values (``step``
+initial condition) or, for trace elements in plagioclase, the two melt
+concentrations the zones grew from (``melt-equilibrium``). The model is
+convolved with the spot (:mod:`~zoneprofile.diffusion.resolution`) before it is
+compared with the data.
+
+Procedure
+---------
+1. A coarse search over (log10 D·t, boundary) with the values solved by linear
+   least squares at every node (the model is linear in the values), for a start
+   that does not depend on luck.
+2. lmfit (``least_squares``, bounds honoured) refines all parameters.
+3. :mod:`~zoneprofile.diffusion.uncertainty` turns the fit into draws of time.
+
+Time is ``t = D_ref·t / D_ref(T)``; the shape of the An-coupled profile also
+depends weakly on T through A/RT, which the uncertainty step measures and
+propagates by refitting at a few temperatures.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings as _warnings
+
+import numpy as np
+
+from zoneprofile._validation import InputError
+from zoneprofile.diffusion._an import _frozen_an, _tie_to_an_step
+from zoneprofile.diffusion._steps import _noise_sd, _other_steps, _side_means, find_boundaries
+
+__all__ = ["fit_boundary", "find_boundaries", "ELEMENT_COLUMNS"]
+
+UM2_PER_M2 = 1e12
+
+#: value column read for each (element, mineral) by the command line
+ELEMENT_COLUMNS = {
+    ("Mg", "plagioclase"): "Mg_ppm",
+    ("Sr", "plagioclase"): "Sr_ppm",
+    ("Ba", "plagioclase"): "Ba_ppm",
+    ("Sr", "alkali-feldspar"): "Sr_ppm",
+    ("Ba", "alkali-feldspar"): "Ba_ppm",
+    ("FeMg", "olivine"): "Fo",
+    ("FeMg", "clinopyroxene"): "Mg_number",
+    ("Ti", "quartz"): "Ti_ppm",
+}
+
+_MIN_SIDE_POINTS = 3
+
+
+# --------------------------------------------------------------------------- helpers
+def _check_inputs(distance_um, value, element, mineral, temperature_c):
+    from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
+
+    el = normalise_element(element)
+    mi = normalise_mineral(mineral)
+    if el not in ELEMENTS:
+        raise InputError(f"unknown element '{element}'; choose one of: {', '.join(ELEMENTS)}")
+    if mi not in MINERALS:
+        raise InputError(f"unknown mineral '{mineral}'; choose one of: {', '.join(MINERALS)}")
+    t = float(temperature_c)
+    if not math.isfinite(t) or t < 0 or t > 1600:
+        raise InputError(f"temperature must lie between 0 and 1600 °C, got {temperature_c}")
+    x = np.asarray(distance_um, float)
+    y = np.asarray(value, float)
+    if x.ndim != 1 or x.shape != y.shape:
+        raise InputError("distance_um and value must be 1-D arrays of the same length")
+    if x.size < 2 * _MIN_SIDE_POINTS:
+        raise InputError(f"a profile needs at least {2 * _MIN_SIDE_POINTS} points to fit a boundary, got {x.size}")
+    bad = np.flatnonzero(~np.isfinite(x) | ~np.isfinite(y))
+    if bad.size:
+        raise InputError(f"point {bad[0] + 1} holds a non-finite distance or value")
+    if np.any(np.diff(x) <= 0):
+        k = int(np.flatnonzero(np.diff(x) <= 0)[0]) + 1
+        raise InputError(f"distances must increase from the rim; point {k + 1} ({x[k]:g} µm) does not")
+    neg = np.flatnonzero(y < 0)
+    if neg.size:
+        raise InputError(f"negative concentration {y[neg[0]]:g} at point {neg[0] + 1}; concentrations must be >= 0",
+                         row=None)
+    return el, mi, x, y
+
+
+# --------------------------------------------------------------------------- set-up
+def _build_grid(x_seg, at_rim, geometry, radius_um, beam_um, beam_shape, n_cells):
+    from zoneprofile.diffusion.grid import refined_grid
+    from zoneprofile.diffusion.resolution import beam_sigma_um
+
+    lo_data, hi_data = float(x_seg[0]), float(x_seg[-1])
+    length = hi_data - lo_data
+    sig = beam_sigma_um(beam_um, beam_shape)
+    reach = 4.0 * sig + 0.02 * length
+    fine_lo = 0.0 if at_rim else lo_data - reach
+    fine_hi = hi_data + reach
+    pad = 2.0 * (fine_hi - fine_lo)
+    lo = 0.0 if at_rim else fine_lo - pad
+    hi = fine_hi + pad
+    if geometry != "planar":
+        if radius_um is None:
+            raise InputError(f"a {geometry} geometry needs the crystal radius (radius_um)")
+        if hi_data > radius_um:
+            raise InputError(f"profile reaches {hi_data:g} µm, beyond the crystal radius {radius_um:g} µm")
+        lo = max(lo, 0.0)
+        fine_lo = max(fine_lo, 0.0)
+        hi = radius_um
+        fine_hi = min(fine_hi, radius_um)
+    spacing = float(np.median(np.diff(x_seg)))
+    h = min((fine_hi - fine_lo) / 200.0, spacing / 3.0, max(sig / 2.0, spacing / 8.0))
+    n_fine = int(min(max(math.ceil((fine_hi - fine_lo) / h), 60), n_cells))
+    return refined_grid(lo, hi, fine_lo, fine_hi, n_fine, growth=1.1, geometry=geometry, radius_um=radius_um)
+
+
+# --------------------------------------------------------------------------- fitting core
+def _coarse_start(model, y, weights, log_bounds, b_bounds, b_start, fixed_b):
+    """Grid search over (log10 D·t, boundary), values by linear least squares."""
+    logs = np.linspace(log_bounds[0] + 0.2, log_bounds[1] - 0.2, 25)
+    if fixed_b:
+        bs = [b_start]
+    else:
+        bs = np.unique(np.concatenate([np.linspace(b_bounds[0], b_bounds[1], 7), [b_start]]))
+    best = (np.inf, None)
+    for lg in logs:
+        for b in bs:
+            basis = model.basis_predictions(lg, b) * weights[None, :]
+            sol, *_ = np.linalg.lstsq(basis.T, y * weights, rcond=None)
+            r = basis.T @ sol - y * weights
+            cost = float(r @ r)
+            if cost < best[0]:
+                best = (cost, [lg, b, *sol])
+    return best[1]
+
+
+def _refit_projected(model, y, weights, start, lower, upper, vary):
+    """Refit of a linear-in-values model by variable projection (fast refits).
+
+    Only log10 D·t (and the boundary, when it varies) are iterated; the two values
+    are solved by linear least squares at every step. Returns the full parameter
+    vector.
+    """
+    from scipy.optimize import least_squares
+
+    free = [0] + ([1] if vary[1] else [])
+    theta = np.array(start, float)
+
+    def values_for(nl):
+        th = theta.copy()
+        th[free] = nl
+        basis = model.basis_predictions(th[0], th[1]) * weights[None, :]
+        v, *_ = np.linalg.lstsq(basis.T, y * weights, rcond=None)
+        return th, basis, v
+
+    def resid(nl):
+        _, basis, v = values_for(nl)
+        return basis.T @ v - y * weights
+
+    lo, hi = lower[free], upper[free]
+    x0 = np.clip(theta[free], lo + 1e-9 * (hi - lo), hi - 1e-9 * (hi - lo))
+    sol = least_squares(resid, x0, bounds=(lo, hi), x_scale="jac", max_nfev=100)
+    th, _, v = values_for(sol.x)
+    th[2:] = v
+    return th
+
+
+def _least_squares(model, y, weights, start, lower, upper, *, max_nfev=400):
+    from scipy.optimize import least_squares
+
+    def resid(theta):
+        return (model.predict(theta) - y) * weights
+
+    x0 = np.clip(start, lower + 1e-9 * (upper - lower), upper - 1e-9 * (upper - lower))
+    sol = least_squares(resid, x0, bounds=(lower, upper), x_scale="jac", max_nfev=max_nfev)
+    return sol.x, sol
+
+
+def _lmfit(model, y, weights, names, start, lower, upper, vary):
+    import lmfit
+
+    params = lmfit.Parameters()
+    for name, v, lo, hi, var in zip(names, start, lower, upper, vary):
+        v = float(np.clip(v, lo, hi))
+        params.add(name, value=v, min=lo, max=hi, vary=var)
+
+    def resid(p):
+        theta = [p[n].value for n in names]
+        return (model.predict(theta) - y) * weights
+
+    with _warnings.catch_warnings():
+        _warnings.simplefilter("ignore")
+        out = lmfit.minimize(resid, params, method="least_squares")
+    return out
+
+
+def _single_threaded(func):
+    """Run ``func`` with OpenBLAS on one thread (small matrices; see ``_blas``)."""
+    import functools
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        from zoneprofile.diffusion._blas import single_thread
+
+        with single_thread():
+            return func(*args, **kwargs)
+
+    return wrapper
+
+
+def _fit_boundary(
+    distance_um,
+    value,
+    *,
+    element,
+    mineral,
+    temperature_c,
+    temperature_sd_c=0.0,
+    an=None,
+    an_distance_um=None,
+    an_beam_um=None,
+    boundary_um=None,
+    boundary_window_um=None,
+    segment_um=None,
+    beam_um=None,
+    beam_shape="gaussian",
+    law=None,
+    partition="bindeman1998",
+    draws=1000,
+    seed=0,
+    obliquity_deg=None,
+    obliquity_sd_deg=0.0,
+    dip_deg=None,
+    value_sd=None,
+    fo2_pa=None,
+    pressure_mpa=None,
+    x_fe=None,
+    direction=None,
+    rim="open",
+    geometry="planar",
+    radius_um=None,
+    path=None,
+    noise_refits=40,
+    n_cells=400,
+    value_name=None,
+):
+    """Fit a diffusion model to one boundary of a profile and date it.
+
+    Parameters
+    ----------
+    distance_um, value : array_like
+        The profile (µm from the rim, increasing; ppm for trace elements, Fo
+        mol% for olivine, Mg# for clinopyroxene).
+    element : {'Mg', 'Sr', 'Ba', 'FeMg', 'Ti'}
+    mineral : {'plagioclase', 'alkali-feldspar', 'olivine', 'clinopyroxene', 'quartz'}
+    temperature_c, temperature_sd_c : float
+        Storage temperature (°C) and its 1-sigma uncertainty.
+    an, an_distance_um : array_like, optional
+        An (mol%) and its positions (default ``distance_um``); needed for
+        plagioclase laws that depend on X_An and for the An-coupled model.
+    an_beam_um : float, optional
+        Spot diameter of the An analyses (default ``beam_um`` when the An comes
+        from the same points).
+    boundary_um : float, optional
+        Boundary position. Given: held fixed (unless ``boundary_window_um``);
+        not given: the largest step, fitted within a window.
+    boundary_window_um : float, optional
+        Half-width of the window the position is fitted in.
+    segment_um : (float, float), optional
+        Only points inside this range take part (several boundaries).
+    beam_um, beam_shape : float, {'gaussian', 'square'}
+        Spot diameter: Gaussian FWHM (electron beam) or square full width
+        (LA-ICP-MS).
+    law : str or DiffusionLaw, optional
+        Law id (default :func:`default_law`).
+    partition : str
+        Partition model for the An-coupled model (plagioclase trace elements).
+    draws, seed : int
+        Monte Carlo draws and the random seed.
+    obliquity_deg, obliquity_sd_deg : float, optional
+        Angle ψ between the traverse and the boundary trace's normal in the
+        section, and its 1-sigma.
+    dip_deg : float, optional
+        Angle φ between the boundary plane's normal and the section normal
+        (90° when not given: boundary perpendicular to the section).
+    value_sd : float or array_like, optional
+        1-sigma precision of the values (weights the fit).
+    fo2_pa, pressure_mpa, x_fe, direction : optional
+        Conditions for laws that use them.
+    rim : {'open', 'closed'}
+        Rim held at equilibrium with the outer melt (open) or zero flux.
+    geometry, radius_um : {'planar', 'cylinder', 'sphere'}, float
+    path : LinearCooling or TablePath, optional
+        Temperature–time path; the time is then the duration along the path.
+    noise_refits : int
+        Refits of residual-resampled data for the analytical-noise part.
+
+    Returns
+    -------
+    FitResult
+    """
+    from zoneprofile.diffusion.laws import default_law, get_law
+    from zoneprofile.diffusion.uncertainty import propagate
+
+    el, mi, x_all, y_all = _check_inputs(distance_um, value, element, mineral, temperature_c)
+    t0 = float(temperature_c)
+    t_sd = float(temperature_sd_c or 0.0)
+    if not math.isfinite(t_sd) or t_sd < 0:
+        raise InputError(f"temperature uncertainty must be >= 0 °C, got {temperature_sd_c}")
+    law_obj = default_law(el, mi) if law is None else get_law(law)
+    if law_obj.element != el:
+        raise InputError(f"law {law_obj.id} is for {law_obj.element}, not {el}; choose a law for {el}")
+    draws = int(draws)
+    if draws < 10:
+        raise InputError(f"draws must be at least 10, got {draws}")
+    warnings = []
+    if law_obj.mineral != mi:
+        warnings.append(f"law {law_obj.id} was calibrated on {law_obj.mineral}, not {mi}")
+
+    # ---- segment and boundary
+    sd_all = None
+    if value_sd is not None:
+        sd_all = np.broadcast_to(np.asarray(value_sd, float), x_all.shape).copy()
+        if np.any(~np.isfinite(sd_all)) or np.any(sd_all <= 0):
+            raise InputError("value_sd must be finite and > 0")
+    if segment_um is not None:
+        keep = (x_all >= segment_um[0]) & (x_all <= segment_um[1])
+    else:
+        keep = np.ones(x_all.size, bool)
+    x, y = x_all[keep], y_all[keep]
+    sd = None if sd_all is None else sd_all[keep]
+    if x.size < 2 * _MIN_SIDE_POINTS:
+        raise InputError(f"too few points ({x.size}) in the part of the profile given to this boundary; "
+                         f"need at least {2 * _MIN_SIDE_POINTS}")
+
+    noise = _noise_sd(y) if sd is None else float(np.median(sd))
+    scale = max(float(np.max(np.abs(y))), 1e-12)
+    if np.ptp(y) <= max(3.0 * noise, 1e-9 * scale):
+        raise InputError("the profile is flat (its range is within the noise): nothing to fit")
+
+    an_x = an_vals = None
+    needs_an = "x_an" in law_obj.needs or (mi == "plagioclase" and el in ("Mg", "Sr", "Ba"))
+    if needs_an:
+        if an is None:
+            raise InputError(f"{el} in {mi} needs An (mol%) along the profile: give an An column or --an-from")
+        an_vals = np.asarray(an, float)
+        an_x = x_all if an_distance_um is None else np.asarray(an_distance_um, float)
+        if an_vals.shape != an_x.shape or an_vals.ndim != 1 or an_vals.size < 2:
+            raise InputError("An values and their distances must be 1-D arrays of the same length")
+        if np.any(~np.isfinite(an_vals)) or np.any((an_vals < 0) | (an_vals > 100)):
+            raise InputError("An must be finite and between 0 and 100 mol%")
+        if np.any(np.diff(an_x) <= 0):
+            raise InputError("An distances must increase from the rim")
+        if an_beam_um is None and an_distance_um is None:
+            an_beam_um = beam_um
+
+    spacing = float(np.median(np.diff(x)))
+    if boundary_um is None:
+        fixed = False
+        source = None
+        if needs_an and an_vals is not None:
+            sel = (an_x >= x[0]) & (an_x <= x[-1])
+            if sel.sum() >= 2 * _MIN_SIDE_POINTS:
+                cand = find_boundaries(an_x[sel], an_vals[sel])
+                if cand:
+                    lo_an, hi_an = _side_means(an_x[sel], an_vals[sel], cand[0])
+                    if abs(hi_an - lo_an) >= max(2.0, 4 * _noise_sd(an_vals[sel])):
+                        source = cand[0]
+        if source is None:
+            cand = find_boundaries(x, y)
+            if not cand:
+                raise InputError("no boundary found: the profile is too short")
+            source = cand[0]
+        b0 = float(source)
+    else:
+        b0 = float(boundary_um)
+        fixed = boundary_window_um is None
+    if not x_all[0] <= b0 <= x_all[-1]:
+        raise InputError(f"boundary {b0:g} µm lies outside the profile ({x_all[0]:g}–{x_all[-1]:g} µm)")
+    if segment_um is None:
+        # other zone boundaries in the profile would break the one-step initial condition:
+        # keep the part between the midpoints to the neighbouring significant steps
+        if needs_an and an_vals is not None:
+            sig_x, sig_y, min_step = an_x, an_vals, 2.0
+        else:
+            sig_x, sig_y, min_step = x, y, 0.0
+        others = _other_steps(sig_x, sig_y, b0, min_step)
+        lo_seg = max([0.5 * (o + b0) for o in others if o < b0], default=-math.inf)
+        hi_seg = min([0.5 * (o + b0) for o in others if o > b0], default=math.inf)
+        if np.isfinite(lo_seg) or np.isfinite(hi_seg):
+            keep = (x >= lo_seg) & (x <= hi_seg)
+            if np.sum(keep & (x < b0)) >= _MIN_SIDE_POINTS and np.sum(keep & (x > b0)) >= _MIN_SIDE_POINTS:
+                x, y = x[keep], y[keep]
+                sd = None if sd is None else sd[keep]
+                segment_um = (lo_seg, hi_seg)
+                spacing = float(np.median(np.diff(x)))
+    n_left, n_right = int(np.sum(x < b0)), int(np.sum(x > b0))
+    if min(n_left, n_right) < _MIN_SIDE_POINTS:
+        raise InputError(
+            f"too few points on either side of the boundary at {b0:g} µm "
+            f"({n_left} rimward, {n_right} coreward; need {_MIN_SIDE_POINTS} each)"
+        )
+    window = float(boundary_window_um) if boundary_window_um is not None else max(3.0 * spacing, 5.0)
+    b_lo = max(b0 - window, x[_MIN_SIDE_POINTS - 1])
+    b_hi = min(b0 + window, x[-_MIN_SIDE_POINTS])
+    if fixed or b_hi <= b_lo:
+        b_lo, b_hi = b0 - 1e-6, b0 + 1e-6
+        fixed = True
+
+    # ---- grid, coupling, problem
+    from zoneprofile.diffusion._problem import Problem
+    from zoneprofile.diffusion.resolution import beam_sigma_um, beam_variance_um2
+
+    at_rim = (segment_um is None or segment_um[0] <= x_all[0]) and x[0] <= max(3.0 * spacing, 0.1 * (x[-1] - x[0]))
+    grid = _build_grid(x, at_rim, geometry, radius_um, beam_um, beam_shape, n_cells)
+    rim_kind = rim if at_rim else "closed"
+    if rim_kind not in ("open", "closed"):
+        raise InputError(f"rim must be 'open' or 'closed', got '{rim}'")
+
+    law_kwargs = {"fo2_pa": fo2_pa, "pressure_pa": None if pressure_mpa is None else float(pressure_mpa) * 1e6,
+                  "direction": direction}
+    coupling = None
+    x_an_cells = None
+    an_info = {}
+    partition_ab = None
+    reference = {}
+    lo_side, hi_side = _side_means(x, y, b0)
+    if needs_an:
+        an_cells_at, an_info = _frozen_an(grid, an_x, an_vals, an_beam_um, b0, window)
+        tie_at = None
+        if fixed and an_info.get("sharpened"):
+            g0, g1 = an_info["gap_um"]
+            if g0 - 1e-9 <= b0 <= g1 + 1e-9:
+                tie_at = b0  # the given boundary is this An step: put the An step exactly there
+        x_an_cells = an_cells_at(tie_at)
+        an_lo, an_hi = _side_means(an_x, an_vals, b0) if np.sum(an_x < b0) and np.sum(an_x > b0) else (
+            float(np.mean(an_vals)),) * 2
+        reference["x_an"] = 0.5 * (an_lo + an_hi) / 100.0
+        if mi == "plagioclase" and el in ("Mg", "Sr", "Ba"):
+            from zoneprofile.diffusion.partition import partition_parameters, partition_range_warnings
+
+            coupling = "an"
+            partition_ab = tuple(float(v) for v in partition_parameters(el, model=partition))
+            warnings += partition_range_warnings(el, an_vals[(an_x >= x[0]) & (an_x <= x[-1])] / 100.0, t0,
+                                                 model=partition)
+    nonlinear = False
+    if el == "FeMg" and mi == "olivine":
+        if x_fe is not None:
+            law_kwargs["x_fe"] = float(x_fe)
+            reference["x_fe"] = float(x_fe)
+        else:
+            if np.any(y > 100):
+                raise InputError("Fo must lie between 0 and 100 mol%")
+            reference["x_fe"] = 1.0 - 0.5 * (lo_side + hi_side) / 100.0
+            nonlinear = "x_fe" in law_obj.needs
+    elif "x_fe" in law_obj.needs:
+        if x_fe is None:
+            raise InputError(f"law {law_obj.id} needs X_Fe; give x_fe")
+        law_kwargs["x_fe"] = float(x_fe)
+
+    if coupling == "an":
+        names = (f"melt_{el.lower()}_ppm_outer", f"melt_{el.lower()}_ppm_inner")
+    else:
+        col = value_name or ELEMENT_COLUMNS.get((el, mi), el)
+        names = (f"{col.lower()}_outer", f"{col.lower()}_inner")
+
+    problem = Problem(
+        element=el, mineral=mi, law=law_obj, grid=grid, x_um=x, y=y, sigma=sd, beam_um=beam_um,
+        beam_shape=beam_shape, rim=rim_kind, value_names=names, coupling=coupling, x_an_cells=x_an_cells,
+        partition_model=partition if coupling else None, partition_ab=partition_ab, nonlinear=nonlinear,
+        law_kwargs=law_kwargs, reference=reference,
+    )
+    # check the law can be evaluated (missing fO2 etc. give a plain message here)
+    d_ref0 = float(problem.d_ref(t0))
+    comp_warn = {k: v for k, v in problem.law_composition(**reference).items() if k in ("x_an", "x_fe", "fo2_pa")}
+    if x_an_cells is not None:
+        comp_warn["x_an"] = an_vals[(an_x >= x[0]) & (an_x <= x[-1])] / 100.0
+    warnings += law_obj.range_warnings(t0 if path is None else path.nominal_c, **comp_warn)
+    if beam_um is None:
+        warnings.append("no spot size given (beam_um): the model was compared with the data point by point; "
+                        "give the beam or spot diameter so the resolution is accounted for")
+
+    # ---- bounds and start
+    h_min = float(np.min(grid.widths_um))
+    length = float(x[-1] - x[0])
+    log_lo = math.log10((0.05 * h_min) ** 2) - 12.0
+    log_hi = math.log10((2.0 * length) ** 2) - 12.0
+    weights = np.ones_like(y) if sd is None else 1.0 / sd
+    if (coupling == "an" and an_info.get("sharpened") and not fixed
+            and an_info["gap_um"][0] <= b_hi and an_info["gap_um"][1] >= b_lo):
+        # the melt changed when An changed: tie the element step to the An step and
+        # choose its place inside the gap between the An points that bracket it
+        b0, x_an_cells, position_candidates = _tie_to_an_step(
+            problem, an_cells_at, an_info["gap_um"], t0, y, weights, (log_lo, log_hi), sd is not None)
+        problem.x_an_cells = x_an_cells
+        b_lo, b_hi, fixed = b0 - 1e-6, b0 + 1e-6, True
+        an_info["tied_position_um"] = b0
+        an_info["position_candidates"] = position_candidates
+    model0 = problem.model(t0)
+    if nonlinear:
+        # start from the linear model with D at the reference composition
+        lin = Problem(**{**problem.__dict__, "nonlinear": False, "_B": problem.data_matrix})
+        start = _coarse_start(lin.model(t0), y, weights, (log_lo, log_hi), (b_lo, b_hi), b0, fixed)
+    else:
+        start = _coarse_start(model0, y, weights, (log_lo, log_hi), (b_lo, b_hi), b0, fixed)
+    # values: generous bounds around the data, never negative (concentrations, Fo)
+    vscale = max(float(np.ptp(y)), 1e-12)
+    if coupling is None:
+        v_lower = [max(0.0, float(y.min()) - 2.0 * vscale)] * 2
+        v_upper = [float(y.max()) + 2.0 * vscale] * 2
+        if el == "FeMg" and mi == "olivine":
+            v_upper = [min(v, 100.0) for v in v_upper]
+    else:
+        v_lower = [0.0, 0.0]
+        v_upper = [10.0 * max(abs(float(s)), 1e-12) + 10.0 * vscale for s in start[2:]]
+    lower = np.array([log_lo, b_lo] + v_lower)
+    upper = np.array([log_hi, b_hi] + v_upper)
+    param_names = ["log10_dt_m2", "boundary_um", *names]
+    vary = [True, not fixed, True, True]
+    out = _lmfit(model0, y, weights, param_names, start, lower, upper, vary)
+    best = np.array([out.params[n].value for n in param_names])
+    pred = model0.predict(best)
+    resid = (pred - y)
+    chi2 = float(np.sum((resid * weights) ** 2))
+    dof = max(y.size - sum(vary), 1)
+
+    params_report = {}
+    bounds_hit = []
+    for n, s0, lo_b, hi_b, var in zip(param_names, start, lower, upper, vary):
+        p = out.params[n]
+        span = hi_b - lo_b
+        at = None
+        if var and p.value <= lo_b + 1e-4 * span:
+            at = "lower"
+        elif var and p.value >= hi_b - 1e-4 * span:
+            at = "upper"
+        if at:
+            bounds_hit.append(n)
+        params_report[n] = {
+            "value": float(p.value), "stderr": None if p.stderr is None else float(p.stderr),
+            "start": float(s0), "min": float(lo_b), "max": float(hi_b), "vary": bool(var), "at_bound": at,
+        }
+    for n in bounds_hit:
+        side = params_report[n]["at_bound"]
+        warnings.append(f"parameter {n} stopped at its {side} bound ({params_report[n]['value']:.4g}); "
+                        "the value and its uncertainty are not reliable")
+
+    sig2 = beam_variance_um2(beam_um, beam_shape)
+    resolution_var_um2 = sig2 + spacing**2 / 12.0
+    context = {
+        "problem": problem, "model": model0, "best": best, "lower": lower, "upper": upper, "vary": vary,
+        "weights": weights, "residuals": resid, "pred": pred, "param_names": param_names,
+        "temperature_c": t0, "temperature_sd_c": t_sd, "draws": draws, "seed": seed,
+        "obliquity_deg": obliquity_deg, "obliquity_sd_deg": float(obliquity_sd_deg or 0.0), "dip_deg": dip_deg,
+        "path": path, "noise_refits": int(noise_refits), "resolution_var_um2": resolution_var_um2,
+        "log_bounds": (log_lo, log_hi), "lmfit": out,
+        "position_candidates": an_info.get("position_candidates") or [],
+    }
+    result = propagate(context)
+    result.warnings = warnings + result.warnings
+    result.parameters = params_report
+    result.chi2 = chi2
+    result.reduced_chi2 = chi2 / dof
+    result.n_points = int(y.size)
+    result.boundary_fixed = bool(fixed)
+    result.an_profile = an_info
+    result.d_ref_m2_s = d_ref0
+    result.setup = {
+        "mineral": mi, "law_citation": law_obj.citation, "law_status": law_obj.status,
+        "initial_condition": "melt-equilibrium" if coupling == "an" else "step",
+        "partition_model": partition if coupling else None,
+        "partition_a_j_mol": None if partition_ab is None else partition_ab[0],
+        "partition_b_j_mol": None if partition_ab is None else partition_ab[1],
+        "reference_composition": reference, "rim": rim_kind, "geometry": geometry,
+        "radius_um": radius_um, "beam_um": beam_um, "beam_shape": beam_shape,
+        "beam_sigma_um": beam_sigma_um(beam_um, beam_shape), "an_beam_um": an_beam_um,
+        "resolution_sd_um": math.sqrt(resolution_var_um2), "grid_cells": grid.n,
+        "solver": "implicit Crank-Nicolson with Picard iteration" if nonlinear else "spectral (eigendecomposition)",
+        "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa, "direction": direction,
+        "path": None if path is None else path.to_dict(),
+        "segment_um": [float(x[0]), float(x[-1])],
+    }
+    return result
+
+
+fit_boundary = _single_threaded(_fit_boundary)
+fit_boundary.__name__ = fit_boundary.__qualname__ = "fit_boundary"

@@ -1,0 +1,396 @@
+r"""Uncertainty of a diffusion time: Monte Carlo over everything that is uncertain.
+
+Each draw ``k`` combines
+
+- **temperature**: ``T_k ~ N(T, σ_T)``; time is ``t_k = τ_k / D_ref(T_k)``.
+  Where the profile shape itself depends on T (the A/RT term of the
+  An-coupled model, or a law that is not temperature-separable), the fit is
+  repeated at T ± 1.25σ and ± 2.5σ and ``log10 τ(T)`` is interpolated by a
+  quadratic, so that dependence is measured, not assumed away;
+- **law parameters**: offsets ``N(0, sd)`` for every parameter with a
+  ``parameter_sd`` (the law rotates the Arrhenius line about its pivot for an
+  activation-energy offset);
+- **analytical noise**: ``noise_refits`` refits of the best model plus
+  resampled residuals (residual bootstrap, residuals inflated by
+  √(n/(n−p))); each draw takes one refit's ``log10 τ`` offset, smoothed by a
+  small Gaussian kernel. For the implicit (non-linear) solver the lmfit
+  covariance is used instead (Laplace approximation) to keep it fast;
+- **obliquity** (when given): ``t_true = t_apparent · (sin φ · cos ψ)²``
+  (REFERENCES §7), ψ ~ N(ψ, σ_ψ), φ = 90° unless given.
+
+The draws are kept (``time_draws_days``) so that intervals between boundaries
+can be propagated draw by draw.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["FitResult", "propagate", "PERCENTILES"]
+
+SECONDS_PER_DAY = 86400.0
+PERCENTILES = {"p2_5": 2.5, "p16": 16.0, "median": 50.0, "p84": 84.0, "p97_5": 97.5}
+_NODES = np.array([-2.5, -1.25, 1.25, 2.5])
+
+
+@dataclass
+class FitResult:
+    """One dated boundary. ``to_dict()`` is one entry of FIT.json ``fits[]``."""
+
+    boundary_um: float
+    element: str
+    law: str
+    temperature_c: float
+    temperature_sd_c: float
+    log10_dt_m2: dict
+    time_days: dict
+    resolved: bool
+    warnings: list
+    time_draws_days: np.ndarray
+    log10_dt_draws: np.ndarray
+    distance_um: np.ndarray
+    model: np.ndarray
+    initial: np.ndarray
+    band_low: np.ndarray
+    band_high: np.ndarray
+    data_distance_um: np.ndarray
+    data_value: np.ndarray
+    data_model: np.ndarray
+    residuals: np.ndarray
+    uncertainty_budget: dict
+    obliquity: dict | None = None
+    temperature_nodes: dict | None = None
+    parameters: dict = field(default_factory=dict)
+    chi2: float = float("nan")
+    reduced_chi2: float = float("nan")
+    n_points: int = 0
+    boundary_fixed: bool = False
+    an_profile: dict = field(default_factory=dict)
+    d_ref_m2_s: float = float("nan")
+    setup: dict = field(default_factory=dict)
+    draws: int = 0
+    noise_method: str = ""
+
+    def to_dict(self) -> dict:
+        return {
+            "boundary_um": self.boundary_um,
+            "element": self.element,
+            "mineral": self.setup.get("mineral"),
+            "law": self.law,
+            "law_citation": self.setup.get("law_citation"),
+            "law_status": self.setup.get("law_status"),
+            "temperature_c": self.temperature_c,
+            "temperature_sd_c": self.temperature_sd_c,
+            "log10_dt_m2": self.log10_dt_m2,
+            "time_days": self.time_days,
+            "resolved": self.resolved,
+            "warnings": list(self.warnings),
+            "d_ref_m2_s": self.d_ref_m2_s,
+            "parameters": self.parameters,
+            "chi2": self.chi2,
+            "reduced_chi2": self.reduced_chi2,
+            "n_points": self.n_points,
+            "boundary_fixed": self.boundary_fixed,
+            "uncertainty_budget_log10_time_sd": self.uncertainty_budget,
+            "obliquity": self.obliquity,
+            "temperature_nodes": self.temperature_nodes,
+            "an_profile": self.an_profile,
+            "draws": self.draws,
+            "noise_method": self.noise_method,
+            "model_setup": self.setup,
+            "curve": {
+                "distance_um": self.distance_um, "model": self.model, "initial": self.initial,
+                "band_low": self.band_low, "band_high": self.band_high,
+            },
+            "points": {"distance_um": self.data_distance_um, "value": self.data_value,
+                       "model": self.data_model, "residual": self.residuals},
+        }
+
+    def report(self) -> str:
+        """A readable summary: what was fitted, the time with its interval, and the caveats."""
+        t = self.time_days
+        lines = [
+            f"Boundary at {self.boundary_um:.2f} µm: {self.element} in {self.setup.get('mineral')}, "
+            f"law {self.law} ({self.setup.get('law_status')})",
+            f"  temperature {self.temperature_c:g} ± {self.temperature_sd_c:g} °C; "
+            f"D_ref = {self.d_ref_m2_s:.3e} m²/s at {self.setup.get('reference_composition')}",
+            f"  log10 D·t = {self.log10_dt_m2['best']:.3f} "
+            f"(95%: {self.log10_dt_m2['p2_5']:.3f} – {self.log10_dt_m2['p97_5']:.3f}) [m²]",
+        ]
+        if self.resolved:
+            lines.append(
+                f"  time = {_fmt_days(t['best'])} (median {_fmt_days(t['median'])}; "
+                f"68%: {_fmt_days(t['p16'])} – {_fmt_days(t['p84'])}; "
+                f"95%: {_fmt_days(t['p2_5'])} – {_fmt_days(t['p97_5'])})"
+            )
+        else:
+            lines.append(f"  NOT RESOLVED: time < {_fmt_days(t.get('upper_bound'))} (upper bound only)")
+        lines.append(f"  chi² = {self.chi2:.4g}, reduced chi² = {self.reduced_chi2:.3g}, {self.n_points} points")
+        lines.append("  parameters (value ± 1σ, start, bounds):")
+        for name, p in self.parameters.items():
+            err = "fixed" if not p["vary"] else ("± n/a" if p["stderr"] is None else f"± {p['stderr']:.3g}")
+            flag = f"  <-- at {p['at_bound']} bound" if p["at_bound"] else ""
+            lines.append(f"    {name:28s} {p['value']:.5g} {err} (start {p['start']:.4g}; "
+                         f"[{p['min']:.4g}, {p['max']:.4g}]){flag}")
+        budget = ", ".join(f"{k} {v:.3f}" for k, v in self.uncertainty_budget.items() if v is not None)
+        lines.append(f"  sd of log10 time by source: {budget}")
+        for w in self.warnings:
+            lines.append(f"  warning: {w}")
+        lines.append("  Diffusion timescales inform, and do not replace, hazard assessment, which belongs "
+                     "to the responsible observatory and local authorities.")
+        return "\n".join(lines)
+
+
+def _fmt_days(d):
+    if d is None or not np.isfinite(d):
+        return "n/a"
+    if d < 1:
+        return f"{d * 24:.3g} h"
+    if d > 3 * 365.25:
+        return f"{d / 365.25:.3g} yr"
+    return f"{d:.3g} d"
+
+
+def _percentiles(values):
+    v = np.asarray(values, float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return {k: None for k in PERCENTILES}
+    return {k: float(np.percentile(v, q)) for k, q in PERCENTILES.items()}
+
+
+def _noise_offsets(ctx, rng):
+    """log10 τ of refits to resampled data (or covariance draws); also the refit parameter sets."""
+    from zoneprofile.diffusion.fitting import _least_squares, _refit_projected
+
+    problem, model, best = ctx["problem"], ctx["model"], ctx["best"]
+    lower, upper, vary = ctx["lower"], ctx["upper"], np.array(ctx["vary"])
+    weights, pred, resid = ctx["weights"], ctx["pred"], ctx["residuals"]
+    n_refits = ctx["noise_refits"]
+    n, p = resid.size, int(vary.sum())
+    at_floor = best[0] <= ctx["log_bounds"][0] + 0.1
+    if problem.nonlinear and not at_floor:
+        out = ctx["lmfit"]
+        names = ctx["param_names"]
+        var_names = [nm for nm, v in zip(names, vary) if v]
+        covar = getattr(out, "covar", None)
+        if covar is not None and np.all(np.isfinite(covar)) and out.var_names == var_names:
+            draws = rng.multivariate_normal(best[vary], covar, size=max(n_refits, 30))
+            thetas = np.tile(best, (draws.shape[0], 1))
+            thetas[:, vary] = draws
+            thetas = np.clip(thetas, lower, upper)
+            return thetas, "lmfit covariance (Laplace approximation)"
+    if problem.nonlinear:
+        # no usable covariance (e.g. at the lower bound of D·t): a few real refits
+        n_refits = min(n_refits, 12)
+    if n_refits <= 0:
+        return best[None, :], "none"
+    scaled = resid * weights * math.sqrt(n / max(n - p, 1))
+    scaled = scaled - scaled.mean()
+    thetas = []
+    lo_fit = np.where(vary, lower, best - 1e-9)
+    hi_fit = np.where(vary, upper, best + 1e-9)
+    linear = hasattr(model, "basis_predictions")
+    for _ in range(n_refits):
+        y_star = pred + rng.choice(scaled, size=n, replace=True) / weights
+        if linear:
+            theta = _refit_projected(model, y_star, weights, best, lower, upper, vary)
+        else:
+            theta, _ = _least_squares(model, y_star, weights, best, lo_fit, hi_fit, max_nfev=200)
+        thetas.append(theta)
+    return np.array(thetas), f"residual bootstrap, {n_refits} refits"
+
+
+def _temperature_shape(ctx):
+    """log10 τ(T) − log10 τ(T0) as a function of δT (None when the shape does not depend on T)."""
+    from zoneprofile.diffusion.fitting import _least_squares, _refit_projected
+
+    problem = ctx["problem"]
+    t0, sd = ctx["temperature_c"], ctx["temperature_sd_c"]
+    if sd <= 0 or ctx["path"] is not None or not problem.shape_depends_on_temperature():
+        return None, None
+    best, lower, upper, vary = ctx["best"], ctx["lower"], ctx["upper"], np.array(ctx["vary"])
+    lo_fit = np.where(vary, lower, best - 1e-9)
+    hi_fit = np.where(vary, upper, best + 1e-9)
+    offsets = _NODES * sd
+    logs = []
+    for dt in offsets:
+        t = t0 + dt
+        if t <= 0:
+            logs.append(np.nan)
+            continue
+        model = problem.model(t)
+        if hasattr(model, "basis_predictions"):
+            theta = _refit_projected(model, problem.y, ctx["weights"], best, lower, upper, vary)
+        else:
+            theta, _ = _least_squares(model, problem.y, ctx["weights"], best, lo_fit, hi_fit, max_nfev=200)
+        logs.append(theta[0])
+    dts = np.concatenate([[0.0], offsets])
+    vals = np.concatenate([[best[0]], logs]) - best[0]
+    ok = np.isfinite(vals)
+    coef = np.polyfit(dts[ok], vals[ok], 2)
+    nodes = {"temperature_c": (t0 + dts[ok]).tolist(), "log10_dt_m2": (best[0] + vals[ok]).tolist(),
+             "max_shift_log10": float(np.max(np.abs(vals[ok])))}
+    return np.poly1d(coef), nodes
+
+
+def propagate(ctx) -> FitResult:
+    """Monte Carlo draws of time from a finished fit (see module notes)."""
+    from zoneprofile.diffusion.paths import durations_days
+    from zoneprofile.diffusion.resolution import beam_matrix
+
+    problem, model, best = ctx["problem"], ctx["model"], ctx["best"]
+    rng = np.random.default_rng(ctx["seed"])
+    n_draws = ctx["draws"]
+    t0, t_sd = ctx["temperature_c"], ctx["temperature_sd_c"]
+    law = problem.law
+    warnings = []
+
+    thetas, noise_method = _noise_offsets(ctx, rng)
+    log_noise = thetas[:, 0]
+    shape_fn, nodes = _temperature_shape(ctx)
+
+    # --- draws
+    z_t = rng.standard_normal(n_draws)
+    t_draw = t0 + t_sd * z_t
+    if np.any(t_draw <= 0):
+        t_draw = np.maximum(t_draw, 1.0)
+    # noise part: a normal centred on the best fit with the larger of the refit scatter
+    # and the lmfit standard error (percentiles of a few dozen refits are too noisy to
+    # trust in the tails); when the best fit sits on the lower bound of D·t the refits
+    # are used as they are (a one-sided distribution: only an upper bound)
+    spread = float(np.std(log_noise, ddof=1)) if log_noise.size > 2 else 0.0
+    stderr = ctx["lmfit"].params["log10_dt_m2"].stderr
+    sd_noise = max(spread, float(stderr) if stderr is not None and np.isfinite(stderr) else 0.0)
+    log_lo = ctx["log_bounds"][0]
+    at_floor = best[0] <= log_lo + 0.1 or np.percentile(log_noise, 2.5) <= log_lo + 0.1
+    z_noise = rng.standard_normal(n_draws)
+    if at_floor and log_noise.size > 1:
+        pick = rng.integers(0, log_noise.size, n_draws)
+        eps = log_noise[pick] - best[0] + 0.25 * spread * z_noise
+    else:
+        eps = sd_noise * z_noise
+    # position of a boundary tied to a sharp An step: the data cannot place it inside the
+    # gap between two An points better than their likelihood says; spread over positions
+    cands = ctx.get("position_candidates") or []
+    if len(cands) > 1:
+        wts = np.array([c["weight"] for c in cands])
+        shifts = np.array([c["log10_dt_m2"] for c in cands]) - cands[int(np.argmax(wts))]["log10_dt_m2"]
+        eps = eps + shifts[rng.choice(len(cands), size=n_draws, p=wts / wts.sum())]
+    g = np.zeros(n_draws) if shape_fn is None else shape_fn(t_draw - t0)
+    perturb = {}
+    for name, sd in (getattr(law, "parameter_sd", {}) or {}).items():
+        if sd and np.isfinite(sd) and sd > 0:
+            perturb[name] = rng.normal(0.0, float(sd), n_draws)
+    log_tau = best[0] + g + eps  # m², D_ref(T_k)·t
+
+    # obliquity
+    obl = None
+    factor = np.ones(n_draws)
+    factor_best = 1.0
+    if ctx["obliquity_deg"] is not None or ctx["dip_deg"] is not None:
+        psi0 = float(ctx["obliquity_deg"] or 0.0)
+        phi0 = 90.0 if ctx["dip_deg"] is None else float(ctx["dip_deg"])
+        psi = psi0 + ctx["obliquity_sd_deg"] * rng.standard_normal(n_draws)
+        factor = (np.sin(np.radians(phi0)) * np.cos(np.radians(psi))) ** 2
+        factor_best = (math.sin(math.radians(phi0)) * math.cos(math.radians(psi0))) ** 2
+        obl = {"psi_deg": psi0, "psi_sd_deg": ctx["obliquity_sd_deg"], "phi_deg": phi0,
+               "phi_assumed": ctx["dip_deg"] is None, "time_factor": factor_best,
+               "formula": "t_true = t_apparent · (sin φ · cos ψ)²",
+               "log10_dt_m2_apparent": float(best[0])}
+        if ctx["dip_deg"] is None:
+            warnings.append("obliquity corrected for the in-section angle only; the boundary was assumed "
+                            "perpendicular to the section (φ = 90°), so the time may still be too long")
+        if factor_best < 0.05:
+            warnings.append("the traverse is nearly parallel to the boundary; the obliquity correction is huge")
+
+    tau_m2 = 10.0**log_tau * factor
+    tau_best = 10.0 ** best[0] * factor_best
+    comp = problem.law_composition(**problem.reference)
+
+    path = ctx["path"]
+    if path is None:
+        d_draw = law.d_m2_s(t_draw, perturb=perturb or None, **comp)
+        time_days = tau_m2 / d_draw / SECONDS_PER_DAY
+        best_days = tau_best / float(law.d_m2_s(t0, **comp)) / SECONDS_PER_DAY
+    else:
+        def d_fn(temp, rows):
+            pert = {k: v[rows] for k, v in perturb.items()} or None
+            return law.d_m2_s(np.maximum(temp, 1.0), perturb=pert, **comp)
+
+        time_days, notes = durations_days(path, d_fn, tau_m2, shift_c=t_draw - t0)
+        warnings += notes
+        bd, _ = durations_days(path, lambda temp, rows: law.d_m2_s(np.maximum(temp, 1.0), **comp),
+                               np.array([tau_best]))
+        best_days = float(bd[0])
+        warnings.append("non-isothermal path: the profile shape was modelled at the path's starting "
+                        "temperature; only the integral of D along the path sets the time")
+
+    log_dt_draws = log_tau + np.log10(factor)
+    ld = _percentiles(log_dt_draws)
+    ld["best"] = float(best[0] + math.log10(factor_best))
+    ld["sd_noise"] = sd_noise
+    td = _percentiles(time_days)
+    td["best"] = float(best_days)
+    n_inf = int(np.sum(~np.isfinite(time_days)))
+    if n_inf:
+        warnings.append(f"{n_inf} of {n_draws} draws give no finite time")
+
+    # --- resolution
+    dt_um2 = 10.0 ** (best[0] + 12.0)
+    res_var = ctx["resolution_var_um2"]
+    p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
+    resolved = bool(2.0 * dt_um2 > res_var and p_low > log_lo + 0.1 and not at_floor)
+    if not resolved:
+        td["upper_bound"] = td["p97_5"]
+        warnings.append(
+            f"the relaxed width (√(2·D·t) = {math.sqrt(2 * dt_um2):.2g} µm) is not larger than the "
+            f"resolution (spot and point spacing, {math.sqrt(res_var):.2g} µm sd): the time is an upper "
+            f"bound only (< {td['p97_5']:.3g} days)"
+        )
+    else:
+        td["upper_bound"] = None
+
+    # --- uncertainty budget (sd of log10 time from each source alone)
+    budget = {"analytical_noise": float(np.std(eps)) if n_draws > 1 else 0.0}
+    if t_sd > 0:
+        d_t = np.log10(law.d_m2_s(t_draw, **comp))
+        budget["temperature"] = float(np.std(g - d_t))
+    else:
+        budget["temperature"] = 0.0
+    if perturb:
+        budget["law_parameters"] = float(np.std(np.log10(law.d_m2_s(t0, perturb=perturb, **comp))))
+    else:
+        budget["law_parameters"] = 0.0
+    budget["obliquity"] = float(np.std(np.log10(factor))) if obl else 0.0
+    budget["total"] = float(np.std(np.log10(time_days[np.isfinite(time_days) & (time_days > 0)]))) \
+        if np.any(np.isfinite(time_days)) else None
+
+    # --- curves for plotting
+    x = problem.x_um
+    xc = np.linspace(x[0], x[-1], 300)
+    b_curve = beam_matrix(problem.grid, xc, beam_um=problem.beam_um, shape=problem.beam_shape)
+    cells_best, c0 = model.cells(best)
+    curve = b_curve @ cells_best
+    idx = np.clip(np.searchsorted(problem.grid.faces_um, xc) - 1, 0, problem.grid.n - 1)
+    initial = c0[idx]
+    if thetas.shape[0] > 1:
+        sub = thetas[: min(thetas.shape[0], 60)]
+        curves = np.array([b_curve @ model.cells(th)[0] for th in sub])
+        band_low = np.percentile(curves, 2.5, axis=0)
+        band_high = np.percentile(curves, 97.5, axis=0)
+    else:
+        band_low = band_high = curve.copy()
+
+    return FitResult(
+        boundary_um=float(best[1]), element=problem.element, law=law.id, temperature_c=t0,
+        temperature_sd_c=t_sd, log10_dt_m2=ld, time_days=td, resolved=resolved, warnings=warnings,
+        time_draws_days=time_days, log10_dt_draws=log_dt_draws, distance_um=xc, model=curve,
+        initial=initial, band_low=band_low, band_high=band_high, data_distance_um=x.copy(),
+        data_value=problem.y.copy(), data_model=ctx["pred"], residuals=problem.y - ctx["pred"],
+        uncertainty_budget=budget, obliquity=obl, temperature_nodes=nodes, draws=n_draws,
+        noise_method=noise_method,
+    )

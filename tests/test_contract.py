@@ -70,3 +70,12 @@ def test_atomic_folder_leaves_nothing_on_failure(tmp_path):
             raise RuntimeError("boom")
     assert not target.exists()
     assert [p.name for p in tmp_path.iterdir()] == []
+
+
+def test_outputs_get_the_usual_file_mode(tmp_path):
+    import os
+
+    mask = os.umask(0)
+    os.umask(mask)
+    p = write_json(tmp_path / "m.json", {})
+    assert (p.stat().st_mode & 0o777) == (0o666 & ~mask)

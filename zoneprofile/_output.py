@@ -60,12 +60,19 @@ def write_bytes(path, data: bytes) -> Path:
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
         os.replace(tmp, p)
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
     return p
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text(path, text: str) -> Path:
@@ -175,6 +182,7 @@ class atomic_folder:
         parent = self.path.parent if str(self.path.parent) else Path(".")
         parent.mkdir(parents=True, exist_ok=True)
         self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.path.name}.", dir=parent))
+        os.chmod(self.tmp, 0o777 & ~_umask())
         return self.tmp
 
     def __exit__(self, exc_type, exc, tb):

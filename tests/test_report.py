@@ -1,0 +1,267 @@
+"""The report: results.json keys, HTML safety and content, tables, figures."""
+
+import base64
+import csv
+import json
+import re
+from html import escape as html_escape
+
+import numpy as np
+import pytest
+
+from zoneprofile import InputError
+from zoneprofile.chronology import population_summary
+from zoneprofile.report import CAUTION, render_crystal_figure, write_outputs
+from zoneprofile.report._sample import sample_provenance, sample_records
+
+HOSTILE_SAMPLE = "<script>alert(1)</script>"
+
+
+@pytest.fixture(scope="module")
+def built(tmp_path_factory):
+    out = tmp_path_factory.mktemp("report")
+    recs = sample_records(seed=11, samples=(HOSTILE_SAMPLE, "=HYPERLINK(\"x\")"), crystals_per_sample=2,
+                          n_draws=300)
+    recs[1]["crystal"] = "-cmd"
+    recs[2]["crystal"] = "@SUM(1)"
+    recs[3]["warnings"] = ["+danger & <b>bold</b>"]
+    pop = population_summary(recs, n_bootstrap=40)
+    assert pop["elements"]["Mg"]["event_intervals"]
+    result = write_outputs(recs, pop, sample_provenance(recs), out, formats=("png", "svg"))
+    return out, recs, pop, result
+
+
+def test_files_written(built):
+    out, recs, _, result = built
+    for name in ("report.html", "results.json", "tables/zones.csv", "tables/fits.csv", "tables/intervals.csv",
+                 "tables/crystals.csv", "tables/events.csv"):
+        assert (out / name).is_file() and name in result["files"]
+    n_ok = sum(1 for r in recs if not r["error"])
+    for ext in ("png", "svg"):
+        # one figure per analysed crystal + chronology + events for the one element
+        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2
+    assert all((out / f).exists() for f in result["files"])
+    assert not list((out / "figures").glob("*.pdf"))  # PDF only on request
+
+
+def test_results_json_has_design_keys_and_no_draws(built):
+    out, recs, _, _ = built
+    text = (out / "results.json").read_text()
+    assert "time_draws_days" not in text and '"curve"' not in text
+    doc = json.loads(text)
+    assert set(doc) >= {"crystals", "population", "provenance"}
+    assert len(doc["crystals"]) == len(recs)
+    dated = 0
+    n_intervals = 0
+    for c in doc["crystals"]:
+        assert {"sample", "crystal", "boundaries", "recharge_intervals_days", "error"} <= set(c)
+        for b in c["boundaries"]:
+            assert {"position_um", "kind", "element", "law", "time_days", "resolved", "warnings"} <= set(b)
+            assert set(b["time_days"]) >= {"best", "median", "p2_5", "p16", "p84", "p97_5"}
+            dated += 1
+        for iv in c["recharge_intervals_days"]:
+            assert {"outer_um", "inner_um", "median", "p2_5", "p97_5"} <= set(iv)
+            n_intervals += 1
+    assert dated >= 4 and n_intervals >= 2
+    failed = [c for c in doc["crystals"] if c["error"]]
+    assert len(failed) == 1 and "fit failed" in failed[0]["error"]
+    prov = doc["provenance"]
+    assert prov["software"]["version"]
+    assert all(len(i["sha256"]) == 64 for i in prov["inputs"])
+    assert prov["laws"][0]["citation"] and prov["laws"][0]["status"] == "from memory"
+    assert prov["caution"] == CAUTION
+    # map arrays are not copied into results.json
+    mapped = [c for c in doc["crystals"] if c.get("map")]
+    assert mapped and mapped[0]["map"]["image"] == "omitted (array)"
+
+
+def test_html_escapes_user_text_and_needs_no_network(built):
+    out, _, _, _ = built
+    page = (out / "report.html").read_text()
+    assert "<script" not in page.lower()
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "&lt;b&gt;bold&lt;/b&gt;" in page and "<b>bold</b>" not in page
+    # no external resource of any kind: no http(s) reference, no external stylesheet/font/script
+    assert not re.search(r"https?://", page)
+    assert not re.search(r"<link\b|@import|<iframe|<object|<embed", page, re.I)
+    srcs = re.findall(r'src="([^"]*)"', page)
+    assert len(srcs) >= 4 and all(s.startswith("data:image/png;base64,") for s in srcs)
+    for s in srcs:
+        assert base64.b64decode(s.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG spec)
+
+
+def test_html_content(built):
+    out, recs, pop, _ = built
+    page = (out / "report.html").read_text()
+    assert "inform, and do not replace" in page and "observatory" in page and "local authorities" in page
+    for section in ("Summary", "Recharge chronology", "Crystals", "Failed crystals", "Warnings",
+                    "Laws and parameters", "Provenance", "How to cite"):
+        assert f"<h2>{section}</h2>" in page
+    assert "fit failed: no boundary wider than the beam" in page
+    assert "from memory" in page
+    assert "Time between events, from crystals recording both" in page
+    for e in pop["elements"]["Mg"]["events"]:
+        assert e["id"] in page
+    # every input's checksum is shown
+    for r in recs:
+        for i in r["inputs"]:
+            assert i["sha256"] in page
+
+
+def _rows(path):
+    with open(path, newline="", encoding="utf-8") as fh:
+        return list(csv.DictReader(fh))
+
+
+def test_tables_neutralise_formula_cells(built):
+    out, recs, _, _ = built
+    crystals = _rows(out / "tables/crystals.csv")
+    samples = {r["sample"] for r in crystals}
+    assert "'=HYPERLINK(\"x\")" in samples  # common practice (OWASP CSV injection): quote prefix
+    names = {r["crystal"] for r in crystals}
+    assert "'-cmd" in names and "'@SUM(1)" in names
+    assert not any(v.startswith(("=", "+", "@")) for r in crystals for v in r.values())
+    zones = _rows(out / "tables/zones.csv")
+    # numbers that start with '-' stay numbers
+    changes = [float(r["change"]) for r in zones if r["feature"] == "step"]
+    assert changes and all(np.isfinite(changes))
+    fits = _rows(out / "tables/fits.csv")
+    assert len(fits) == sum(len(r["boundaries"]) for r in recs)
+    first = recs[0]["boundaries"][0]
+    assert float(fits[0]["time_median_days"]) == pytest.approx(first["time_days"]["median"], rel=1e-9)
+    intervals = _rows(out / "tables/intervals.csv")
+    assert len(intervals) == sum(len(r["recharge_intervals_days"]) for r in recs)
+    events = _rows(out / "tables/events.csv")
+    assert [e["event"] for e in events] == ["Mg-1", "Mg-2"]
+
+
+def test_svg_keeps_text_with_units(built):
+    out, _, _, _ = built
+    svg = next((out / "figures").glob("chronology-*.svg")).read_text()
+    assert "time since boundary formed (days, log scale)" in svg
+    assert "density (per log10 day)" in svg
+    crystal_svg = sorted((out / "figures").glob("crystal-*.svg"))[1].read_text()
+    assert "distance from rim (µm)" in crystal_svg and "Mg (ppm)" in crystal_svg
+
+
+def test_map_from_png_file(tmp_path):
+    from matplotlib.image import imsave
+
+    rec = sample_records(seed=1, samples=("S",), crystals_per_sample=1, with_failure=False)[0]
+    img = np.asarray(rec["map"].pop("image"))
+    (tmp_path / "maps").mkdir()
+    imsave(tmp_path / "maps" / "m.png", np.nan_to_num(img), cmap="gray")
+    rec["map"]["image_png"] = "maps/m.png"
+    (svg,) = render_crystal_figure(rec, tmp_path / "f.png", formats=("svg",), map_dir=tmp_path)
+    assert "<image" in svg.read_text()  # the map raster is drawn
+    rec["map"]["image_png"] = "maps/missing.png"
+    (svg2,) = render_crystal_figure(rec, tmp_path / "g.svg", formats=("svg",), map_dir=tmp_path)
+    text = svg2.read_text()
+    assert "<image" not in text and "map image not found" in text
+
+
+def test_bad_arguments(tmp_path):
+    recs = sample_records(seed=2, crystals_per_sample=1, with_failure=False, with_map=False)
+    pop = population_summary(recs, n_bootstrap=0)
+    with pytest.raises(InputError, match="does not exist"):
+        write_outputs(recs, pop, {}, tmp_path / "nope")
+    with pytest.raises(InputError, match="unknown figure format 'gif'"):
+        write_outputs(recs, pop, {}, tmp_path, formats=("gif",))
+
+
+def test_sparse_records_render(tmp_path):
+    # a record with no zoning, no curves and no map still gives a page; no provenance given
+    # a '$' in a name would start matplotlib mathtext: it must be drawn literally
+    recs = [{"sample": "S $5 & $_{bad", "crystal": "c1", "mineral": "olivine", "error": None,
+             "boundaries": [{"position_um": 5.0, "element": "FeMg", "law": "unknown-law",
+                             "time_days": {"median": 3.0, "p2_5": 1.0, "p97_5": 9.0}, "resolved": True}]}]
+    pop = population_summary(recs, n_bootstrap=10)
+    res = write_outputs(recs, pop, None, tmp_path, formats=("pdf",))
+    pdfs = sorted((tmp_path / "figures").glob("*.pdf"))
+    assert len(pdfs) == 3 and all(p.read_bytes()[:5] == b"%PDF-" for p in pdfs)  # PDF header (ISO 32000)
+    page = res["report"].read_text()
+    assert "citation not recorded" in page
+    assert page.count("<img") == 3
+
+
+def test_only_upper_bounds_and_nothing_dated(tmp_path):
+    recs = sample_records(seed=3, samples=("S",), crystals_per_sample=1, with_failure=False, with_map=False,
+                          n_draws=100)
+    for b in recs[0]["boundaries"]:
+        b["resolved"] = False
+    pop = population_summary(recs, n_bootstrap=5)
+    assert pop["boundaries"] == [] and len(pop["unresolved"]) == 2
+    (tmp_path / "a").mkdir()
+    res = write_outputs(recs, pop, {}, tmp_path / "a", formats=("png",))
+    page = res["report"].read_text()
+    assert page.count("<img") == 3 and "upper bound" in page
+    # a crystal without any boundary and a campaign where nothing is dated
+    recs = [{"sample": "S", "crystal": "c1", "error": None, "boundaries": []}]
+    (tmp_path / "b").mkdir()
+    res = write_outputs(recs, population_summary(recs), {}, tmp_path / "b", formats=("png",))
+    page = res["report"].read_text()
+    assert "No dated boundary" in page and page.count("<img") == 1
+
+
+def test_prerendered_crystal_figures_are_reused(tmp_path):
+    from PIL import Image
+
+    recs = sample_records(seed=4, samples=("S",), crystals_per_sample=1, with_failure=False, with_map=False,
+                          n_draws=50)
+    (tmp_path / "figures").mkdir()
+    marker = tmp_path / "figures" / "drawn-by-worker.png"
+    Image.new("RGB", (12, 7), (213, 94, 0)).save(marker)
+    res = write_outputs(recs, population_summary(recs, n_bootstrap=0), {}, tmp_path, formats=("png",),
+                        crystal_figures={0: "figures/drawn-by-worker.png"})
+    page = res["report"].read_text()
+    assert base64.b64encode(marker.read_bytes()).decode() in page
+    assert "figures/drawn-by-worker.png" in res["files"]
+    assert not list((tmp_path / "figures").glob("crystal-*"))
+
+
+def test_law_citation_from_the_registry(tmp_path):
+    # a law not listed in the provenance is looked up in the diffusion registry
+    diffusion = pytest.importorskip("zoneprofile.diffusion")
+    law_id = next(iter(diffusion.LAWS))
+    law = diffusion.get_law(law_id)
+    recs = [{"sample": "S", "crystal": "c1", "error": None,
+             "boundaries": [{"position_um": 5.0, "element": "Mg", "law": law_id,
+                             "time_days": {"median": 3.0, "p2_5": 1.0, "p97_5": 9.0}, "resolved": True}]}]
+    res = write_outputs(recs, population_summary(recs, n_bootstrap=0), {}, tmp_path, formats=("png",))
+    doc = json.loads(res["results"].read_text())
+    (entry,) = doc["provenance"]["laws"]
+    assert entry["id"] == law_id and entry["citation"] == law.citation
+    assert entry["n_boundaries"] == 1
+    page = res["report"].read_text()
+    assert html_escape(law.citation) in page
+    assert str(law.status).lower() in page
+
+
+def test_range_text():
+    from zoneprofile.report.provenance import range_text
+
+    law = {"t_range_c": [800.0, 1200.0], "composition_range": {"x_an": [0.4, 0.9]}, "fo2_range_pa": None}
+    assert range_text(law) == "T 800–1200 °C; x_an 0.4–0.9"
+    assert range_text({"range": "725-1075 °C, dry"}) == "725-1075 °C, dry"
+    assert range_text({}) == "not recorded"
+
+
+def test_two_elements_get_their_own_chronology(tmp_path):
+    import copy
+
+    recs = sample_records(seed=6, samples=("S",), crystals_per_sample=1, with_failure=False, with_map=False,
+                          n_draws=100)
+    for r in recs:
+        extra = copy.deepcopy(r["boundaries"])
+        for b in extra:
+            b["element"] = "Sr"
+            b["time_draws_days"] = [3 * t for t in b["time_draws_days"]]
+            b["time_days"] = {k: 3 * v for k, v in b["time_days"].items()}
+        r["boundaries"] += extra
+    pop = population_summary(recs, n_bootstrap=5)
+    assert set(pop["elements"]) == {"Mg", "Sr"}
+    write_outputs(recs, pop, {}, tmp_path, formats=("png",))
+    names = sorted(p.name for p in (tmp_path / "figures").glob("*.png"))
+    assert {"chronology-Mg.png", "chronology-Sr.png", "events-Mg.png", "events-Sr.png"} <= set(names)
+    page = (tmp_path / "report.html").read_text()
+    assert "Sr-1" in page and "Mg-1" in page

@@ -1,0 +1,160 @@
+"""Tables for a supplement: zones, fits, intervals, crystals, events (CSV).
+
+One tidy table per topic, one row per item, units in column names. Written
+with :func:`zoneprofile._output.write_table`, which neutralises text cells that
+a spreadsheet would run as a formula.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pandas as pd
+
+from zoneprofile._output import write_table
+
+__all__ = [
+    "zones_table",
+    "fits_table",
+    "intervals_table",
+    "crystals_table",
+    "events_table",
+    "write_tables",
+]
+
+ZONE_COLUMNS = ["sample", "crystal", "mineral", "column", "feature", "start_um", "end_um", "position_um",
+                "mean", "trend_per_um", "before", "after", "change", "kind", "recharge", "width_um",
+                "position_sd_um", "wavelength_um", "amplitude", "p_value", "evidence"]
+FIT_COLUMNS = ["sample", "crystal", "mineral", "position_um", "kind", "element", "law", "temperature_c",
+               "log10_dt_m2", "time_best_days", "time_median_days", "time_p2_5_days", "time_p16_days",
+               "time_p84_days", "time_p97_5_days", "resolved", "obliquity_deg", "warnings"]
+INTERVAL_COLUMNS = ["sample", "crystal", "element", "outer_um", "inner_um", "median_days", "p2_5_days",
+                    "p16_days", "p84_days", "p97_5_days", "n_draws", "fraction_negative", "resolved",
+                    "warnings"]
+CRYSTAL_COLUMNS = ["sample", "crystal", "mineral", "status", "error", "n_points", "n_steps",
+                   "n_resorption_surfaces", "n_dated_boundaries", "n_resolved", "n_intervals", "n_warnings",
+                   "inputs"]
+EVENT_COLUMNS = ["element", "event", "median_days", "p2_5_days", "p97_5_days", "n_boundaries", "n_crystals",
+                 "fraction_of_crystals", "crystals"]
+
+
+def _join(items) -> str:
+    return "; ".join(str(i) for i in (items or []))
+
+
+def _frame(rows, columns) -> pd.DataFrame:
+    frame = pd.DataFrame(rows, columns=columns)
+    return frame
+
+
+def zones_table(records) -> pd.DataFrame:
+    """One row per zoning feature: zone, step, resorption surface, oscillatory band."""
+    rows = []
+    for r in records:
+        z = r.get("zones") or {}
+        base = {"sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
+                "column": z.get("column")}
+        for item in z.get("zones") or []:
+            rows.append({**base, "feature": "zone", **{k: item.get(k) for k in
+                                                       ("start_um", "end_um", "mean", "trend_per_um", "kind")}})
+        for item in z.get("steps") or []:
+            rows.append({**base, "feature": "step", **{k: item.get(k) for k in
+                                                       ("position_um", "before", "after", "change", "kind",
+                                                        "recharge", "width_um", "position_sd_um")}})
+        for item in z.get("resorption_surfaces") or []:
+            rows.append({**base, "feature": "resorption surface", "position_um": item.get("position_um"),
+                         "evidence": _join(item.get("evidence"))})
+        for item in z.get("oscillatory_bands") or []:
+            rows.append({**base, "feature": "oscillatory band", **{k: item.get(k) for k in
+                                                                   ("start_um", "end_um", "wavelength_um",
+                                                                    "amplitude", "p_value")}})
+    return _frame(rows, ZONE_COLUMNS)
+
+
+def _temperature(r, b):
+    if b.get("temperature_c") is not None:
+        return b.get("temperature_c")
+    return (r.get("parameters") or {}).get("temperature_c")
+
+
+def fits_table(records) -> pd.DataFrame:
+    """One row per dated boundary, times in days."""
+    rows = []
+    for r in records:
+        for b in r.get("boundaries") or []:
+            td = b.get("time_days") or {}
+            rows.append({
+                "sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
+                "position_um": b.get("position_um"), "kind": b.get("kind"), "element": b.get("element"),
+                "law": b.get("law"), "temperature_c": _temperature(r, b), "log10_dt_m2": b.get("log10_dt_m2"),
+                "time_best_days": td.get("best"), "time_median_days": td.get("median"),
+                "time_p2_5_days": td.get("p2_5"), "time_p16_days": td.get("p16"),
+                "time_p84_days": td.get("p84"), "time_p97_5_days": td.get("p97_5"),
+                "resolved": b.get("resolved"), "obliquity_deg": b.get("obliquity_deg"),
+                "warnings": _join(b.get("warnings")),
+            })
+    return _frame(rows, FIT_COLUMNS)
+
+
+def intervals_table(records) -> pd.DataFrame:
+    """One row per recharge interval (inner minus outer boundary time)."""
+    rows = []
+    for r in records:
+        for iv in r.get("recharge_intervals_days") or []:
+            rows.append({
+                "sample": r.get("sample"), "crystal": r.get("crystal"), "element": iv.get("element"),
+                "outer_um": iv.get("outer_um"), "inner_um": iv.get("inner_um"),
+                "median_days": iv.get("median"), "p2_5_days": iv.get("p2_5"), "p16_days": iv.get("p16"),
+                "p84_days": iv.get("p84"), "p97_5_days": iv.get("p97_5"), "n_draws": iv.get("n_draws"),
+                "fraction_negative": iv.get("fraction_negative"), "resolved": iv.get("resolved"),
+                "warnings": _join(iv.get("warnings")),
+            })
+    return _frame(rows, INTERVAL_COLUMNS)
+
+
+def crystals_table(records) -> pd.DataFrame:
+    """One row per crystal: status, counts, error reason, input files."""
+    rows = []
+    for r in records:
+        z = r.get("zones") or {}
+        bs = r.get("boundaries") or []
+        n_warn = len(r.get("warnings") or []) + sum(len(b.get("warnings") or []) for b in bs)
+        prof = r.get("profile") or {}
+        rows.append({
+            "sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
+            "status": "failed" if r.get("error") else "ok", "error": r.get("error") or "",
+            "n_points": len(prof.get("distance_um") or []), "n_steps": len(z.get("steps") or []),
+            "n_resorption_surfaces": len(z.get("resorption_surfaces") or []), "n_dated_boundaries": len(bs),
+            "n_resolved": sum(1 for b in bs if b.get("resolved", True)),
+            "n_intervals": len(r.get("recharge_intervals_days") or []), "n_warnings": n_warn,
+            "inputs": _join(i.get("path") for i in r.get("inputs") or []),
+        })
+    return _frame(rows, CRYSTAL_COLUMNS)
+
+
+def events_table(population) -> pd.DataFrame:
+    """One row per recharge event of the population summary."""
+    rows = []
+    for block in (population or {}).get("elements", {}).values():
+        for e in block.get("events") or []:
+            rows.append({
+                "element": e.get("element"), "event": e.get("id"), "median_days": e.get("median_days"),
+                "p2_5_days": e.get("p2_5_days"), "p97_5_days": e.get("p97_5_days"),
+                "n_boundaries": e.get("n_boundaries"), "n_crystals": e.get("n_crystals"),
+                "fraction_of_crystals": e.get("fraction_of_crystals"),
+                "crystals": _join(f"{c['sample']}/{c['crystal']}" for c in e.get("crystals") or []),
+            })
+    return _frame(rows, EVENT_COLUMNS)
+
+
+def write_tables(records, population, table_dir) -> list[Path]:
+    """Write zones.csv, fits.csv, intervals.csv, crystals.csv, events.csv into ``table_dir``."""
+    d = Path(table_dir)
+    d.mkdir(parents=True, exist_ok=True)
+    return [
+        write_table(d / "zones.csv", zones_table(records)),
+        write_table(d / "fits.csv", fits_table(records)),
+        write_table(d / "intervals.csv", intervals_table(records)),
+        write_table(d / "crystals.csv", crystals_table(records)),
+        write_table(d / "events.csv", events_table(population)),
+    ]

@@ -157,3 +157,23 @@ def test_staircase_of_close_steps_is_resolved():
         hits_total += hits
         assert extra <= 1 and res.oscillatory_bands == [], seed
     assert hits_total >= 11
+
+
+def test_two_adjacent_noisy_points_are_not_a_step():
+    # Self-consistency (invented data): one resorption step at 70 µm; by chance
+    # two neighbouring points near 160 µm deviate by -1.9 and +2.5 sigma. A
+    # slope-plus-jump fit in a short window once read them as a 5 mol% normal
+    # step; the plain means on either side show no step there.
+    rng = np.random.default_rng(11)
+    d = np.cumsum(rng.uniform(1.0, 2.5, 140))
+    d -= d[0]
+    rng.normal(0, 0.6, d.size)  # draws used by other profiles of the same set
+    rng.normal(0, 0.8, d.size)
+    d3 = np.arange(0, 250, 1.0) + rng.uniform(-0.2, 0.2, 250)
+    rng.normal(0, 0.5, d3.size)
+    an = np.where(d < 70, 68.0, 53.0) + rng.normal(0, 0.6, d.size)
+    an = np.round(an, 2)
+    assert np.ptp(an[(d > 157) & (d < 162)]) > 3.0  # the chance excursion is there
+    steps = analyse_zoning(np.round(d, 2), an).to_dict()["steps"]
+    assert [s["kind"] for s in steps] == ["reverse"]
+    assert abs(steps[0]["position_um"] - 70.0) < 2.0

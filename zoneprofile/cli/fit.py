@@ -62,8 +62,10 @@ def configure(parser):
                         help="1-sigma of --obliquity-deg (default 0)")
     parser.add_argument("--dip-deg", type=float, metavar="PHI",
                         help="angle between the boundary plane's normal and the section normal (default 90)")
-    parser.add_argument("--rim", choices=("open", "closed"), default="open",
-                        help="rim held in equilibrium with the outer melt (open, default) or zero flux (closed)")
+    parser.add_argument("--rim", choices=("auto", "open", "closed"), default="auto",
+                        help="rim held in equilibrium with the outer melt (open) or zero flux (closed); "
+                             "auto (default): whichever fits the data better where the diffused zone reaches "
+                             "the rim")
     parser.add_argument("--geometry", choices=("planar", "cylinder", "sphere"), default="planar",
                         help="crystal geometry (default planar); curved ones need --radius-um")
     parser.add_argument("--radius-um", type=float, metavar="R", help="crystal radius for cylinder/sphere, µm")

@@ -43,11 +43,14 @@ def _frozen_an(grid, an_x, an_values, an_beam_um, boundary_um, window_um):
     noise = max(_noise_sd(an), 1e-4)
     # measured An, with its analytical noise reduced: where the An of the profile is
     # consistent with a constant (within 1.5 × its point-to-point scatter) use the mean;
-    # otherwise a 5-point running mean (measurement noise is not zoning)
-    smooth = _running_mean(an, 5)
-    if np.std(an) <= 1.5 * noise:
+    # otherwise a 5-point running mean (measurement noise is not zoning) taken on each
+    # side of the boundary separately, so the mean never smears the step itself
+    flat = np.std(an) <= 1.5 * noise
+    if flat:
         smooth = np.full_like(an, np.mean(an))
-    measured = np.interp(grid.centres_um, xa, smooth)
+    else:
+        smooth = _split_running_mean(xa, an, boundary_um, 5)
+    measured = _interp_split(grid.centres_um, xa, smooth, boundary_um)
     sel = np.abs(xa - boundary_um) <= half
     plain = (lambda position_um=None: measured), {"sharpened": False, "an_noise_sd": 100 * noise}
     if sel.sum() < 6 or np.sum(xa[sel] < boundary_um) < 2 or np.sum(xa[sel] > boundary_um) < 2:
@@ -65,43 +68,126 @@ def _frozen_an(grid, an_x, an_values, an_beam_um, boundary_um, window_um):
     bounds = ([-1, -1, xs[0], 0.0], [2, 2, xs[-1], half])
     sol = least_squares(resid, start, bounds=bounds)
     lo, hi, x0, w_app = sol.x
-    s = math.sqrt(max(w_app**2 - sig_beam**2, 0.0))
-    region = np.abs(grid.centres_um - x0) <= half * 0.75
-    if np.std(sol.fun) <= 1.5 * noise:
-        # two plateaus explain the An near the boundary: use them on each side, up to
-        # where the measured An departs from them
-        left = np.flatnonzero((xa < x0) & (np.abs(an - lo) > 3 * noise))
-        right = np.flatnonzero((xa > x0) & (np.abs(an - hi) > 3 * noise))
-        r_lo = xa[left[-1]] if left.size else -np.inf
-        r_hi = xa[right[0]] if right.size else np.inf
-        region = (grid.centres_um > r_lo) & (grid.centres_um < r_hi)
+    # variances add: s² = w² − σ_spot²; the noise inflates the fitted w² by its variance
+    # (E[ŵ²] = w² + se_w²), which would make a sharp step look like a 0.5–1 µm growth step
+    w_se = _param_se(sol, noise, 3)
+    w_se = w_se if math.isfinite(w_se) else 0.0
+    s = math.sqrt(max(w_app**2 - w_se**2 - sig_beam**2, 0.0))
+    # the measured An split at the fitted step (not at the first guess)
+    if not flat:
+        smooth = _split_running_mean(xa, an, x0, 5)
+        measured = _interp_split(grid.centres_um, xa, smooth, x0)
+    # the step model replaces the measured An from the step out to where the measured An
+    # departs from the (spot-blurred) step model: two successive points off by > 3 noise
+    blurred = lo + (hi - lo) * ndtr((xa - x0) / max(w_app, 1e-9))
+    off = np.abs(an - blurred) > 3.0 * noise
+    r_lo, r_hi = x0 - half, x0 + half
+    left = np.flatnonzero(xa < x0)[::-1]
+    for a, b in zip(left[:-1], left[1:]):
+        if xa[a] < x0 - half:
+            break
+        if off[a] and off[b]:
+            r_lo = xa[a]
+            break
+    right = np.flatnonzero(xa > x0)
+    for a, b in zip(right[:-1], right[1:]):
+        if xa[a] > x0 + half:
+            break
+        if off[a] and off[b]:
+            r_hi = xa[a]
+            break
+    region = (grid.centres_um > r_lo) & (grid.centres_um < r_hi)
     sharp = s < 0.5 * spacing
-    gap = [float(xa[xa <= x0].max()), float(xa[xa > x0].min())] if sharp else [float(x0), float(x0)]
+    below, above = xa[xa <= x0], xa[xa > x0]
+    bracket = [float(below.max()), float(above.min())] if below.size and above.size else [float(x0)] * 2
+    # where the step can be: spots that saw part of it (a blurred step) place it to within
+    # the An fit's standard error; a step between two spots that saw none of it can be
+    # anywhere between them
+    x0_se = _position_se(sol, noise)
+    if sharp:
+        gap = [max(bracket[0], x0 - 2.5 * x0_se), min(bracket[1], x0 + 2.5 * x0_se)]
+        if gap[1] - gap[0] < 1e-6:
+            gap = [float(x0), float(x0)]
+    else:
+        gap = [float(x0), float(x0)]
+
+    faces = grid.faces_um
 
     def cells_at(position_um=None):
         pos = x0 if position_um is None else float(position_um)
-        if sharp:
+        # the deconvolved width is kept even when it is below the point spacing (a growth
+        # step of ~1 µm changes the time by 10–25 %); cell averages of the erf, exact
+        # for a step much narrower than a cell
+        if s <= 1e-6:
             step = lo + (hi - lo) * grid.fraction_beyond([pos])[0]
         else:
-            step = lo + (hi - lo) * ndtr((grid.centres_um - pos) / s)
+            z = (faces - pos) / s
+            prim = z * ndtr(z) + np.exp(-0.5 * z**2) / math.sqrt(2.0 * math.pi)  # ∫ Φ dz
+            step = lo + (hi - lo) * np.diff(prim) / np.diff(z)
         out = measured.copy()
         out[region] = step[region]
         return np.clip(out, 0.0, 1.0)
 
     info = {"sharpened": True, "position_um": float(x0), "outer_an": 100 * float(lo),
             "inner_an": 100 * float(hi), "apparent_width_sd_um": float(w_app), "width_sd_um": float(s),
-            "an_beam_um": an_beam_um, "gap_um": gap, "an_noise_sd": 100 * noise}
+            "an_beam_um": an_beam_um, "gap_um": [float(g) for g in gap], "bracket_um": bracket,
+            "position_se_um": float(x0_se) if math.isfinite(x0_se) else None,
+            "an_noise_sd": 100 * noise}
     return cells_at, info
 
 
-def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd, n_candidates=5):
+def _split_running_mean(x, y, split, k):
+    """Running mean over ``k`` points on each side of ``split`` separately."""
+    out = np.empty_like(y)
+    left = x < split
+    if left.any():
+        out[left] = _running_mean(y[left], k)
+    if (~left).any():
+        out[~left] = _running_mean(y[~left], k)
+    return out
+
+
+def _interp_split(xc, x, y, split):
+    """Linear interpolation that does not bridge ``split`` (each side extends its end value)."""
+    out = np.interp(xc, x, y)
+    left, right = x < split, x >= split
+    if left.any() and right.any():
+        lc = xc < split
+        out[lc] = np.interp(xc[lc], x[left], y[left])
+        out[~lc] = np.interp(xc[~lc], x[right], y[right])
+    return out
+
+
+def _position_se(sol, noise):
+    """Standard error of the fitted step position (Gauss–Newton covariance, noise σ known)."""
+    return _param_se(sol, noise, 2)
+
+
+def _param_se(sol, noise, index):
+    """Standard error of parameter ``index`` of the erf fit (2: position, 3: width)."""
+    jac = np.asarray(sol.jac, float)
+    try:
+        cov = np.linalg.pinv(jac.T @ jac) * max(float(np.mean(sol.fun**2)), noise**2)
+        se = math.sqrt(max(float(cov[index, index]), 0.0))
+    except (np.linalg.LinAlgError, ValueError):
+        return math.inf
+    # a step no spot saw the inside of has no position information (vanishing derivative)
+    if not math.isfinite(se) or float(np.max(np.abs(jac[:, index]))) < 1e-9:
+        return math.inf
+    return se
+
+
+def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd, n_candidates=5,
+                    an_position=None):
     """Place the tied An/element step inside the An gap: best position and likelihood weights.
 
     Returns ``(position, x_an_cells, candidates)``; ``candidates`` lists each
     tried position with its log10 D·t and its relative likelihood
     ``exp(−Δχ²/2)`` (χ² from the residuals, scaled by the residual variance
     when no precision was given), used to spread the time over positions the
-    data cannot tell apart.
+    data cannot tell apart. ``an_position = (x0, se)``: where the An fit put
+    the step and its standard error; it multiplies the likelihood (the An
+    points see the step too).
     """
     from zoneprofile.diffusion.fitting import _coarse_start, _least_squares
 
@@ -126,14 +212,21 @@ def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd
     # refine between the neighbours of the best candidate (the time is sensitive to it)
     from scipy.optimize import minimize_scalar
 
-    k = int(np.argmin([r[1] for r in rows]))
+    def an_chi2(c):
+        if an_position is None or not an_position[1] or not math.isfinite(an_position[1]):
+            return 0.0
+        return ((c - an_position[0]) / an_position[1]) ** 2
+
+    scale0 = 1.0 if known_sd else 2.0 * min(r[1] for r in rows) / max(y.size - 3, 1)
+    k = int(np.argmin([2.0 * r[1] / max(scale0, 1e-300) + an_chi2(r[0]) for r in rows]))
     step = (hi - lo) / n_candidates
     a, b = max(lo, candidates[k] - step), min(hi, candidates[k] + step)
-    minimize_scalar(cost_at, bounds=(a, b), method="bounded", options={"xatol": 0.01 * step})
+    minimize_scalar(lambda c: 2.0 * cost_at(c) / max(scale0, 1e-300) + an_chi2(c), bounds=(a, b),
+                    method="bounded", options={"xatol": 0.01 * step})
     rows.sort()
     costs = np.array([r[1] for r in rows])
     scale = 1.0 if known_sd else 2.0 * costs.min() / max(y.size - 3, 1)
-    chi2 = 2.0 * costs / max(scale, 1e-300)
+    chi2 = 2.0 * costs / max(scale, 1e-300) + np.array([an_chi2(r[0]) for r in rows])
     like = np.exp(-0.5 * (chi2 - chi2.min()))
     # ∫ L(p) dp over the gap: trapezoid widths of the (unevenly) evaluated positions
     pos = np.array([r[0] for r in rows])
@@ -141,6 +234,6 @@ def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd
     like = like * np.diff(edges)
     like /= like.sum()
     out = [{"position_um": r[0], "log10_dt_m2": r[2], "weight": float(wt)} for r, wt in zip(rows, like)]
-    best = rows[int(np.argmin(costs))][0]
+    best = rows[int(np.argmin(chi2))][0]
     return float(best), cells_at(best), out
 

@@ -112,6 +112,126 @@ def _build_grid(x_seg, at_rim, geometry, radius_um, beam_um, beam_shape, n_cells
     return refined_grid(lo, hi, fine_lo, fine_hi, n_fine, growth=1.1, geometry=geometry, radius_um=radius_um)
 
 
+_UNDIFFUSED_RIM_DCHI2 = 3.84
+
+
+def _choose_rim(problem, t0, y, weights, log_bounds, b_bounds, b0, fixed, known_sd):
+    """Open or closed rim for ``rim='auto'``: open unless the data clearly prefer closed.
+
+    The open rim (the outermost zone in contact with its melt) is fitted first
+    (coarse search and a variable-projection refit); the closed rim is then
+    fitted with the boundary where the open fit put it, so that the comparison
+    is about the rim alone (a closed rim lets a wide step trade position for
+    D·t). Closed is kept when it lowers χ² by more than 3.84 (95 %, one
+    degree of freedom; in units of the residual variance when no precision
+    was given). Returns ``(kind, info)``.
+    """
+    out, models = {}, {}
+    lower = np.array([log_bounds[0], b_bounds[0], 0.0, 0.0])
+    b_fit = b0
+    for kind in ("open", "closed"):
+        problem.rim = kind
+        model = problem.model(t0)
+        hold = fixed or kind == "closed"
+        bb = (b_fit, b_fit) if hold else b_bounds
+        start = np.array(_coarse_start(model, y, weights, log_bounds, bb, b_fit, hold), float)
+        lo = lower.copy()
+        up = np.array([log_bounds[1], b_bounds[1], *(10.0 * np.abs(start[2:]) + 1e-12 + 10.0 * np.ptp(y))])
+        if hold:
+            lo[1], up[1] = b_fit - 1e-9, b_fit + 1e-9
+        theta = _refit_projected(model, y, weights, start, lo, up, [True, not hold, True, True])
+        r = model.predict(theta) - y
+        out[kind] = (float(np.sum((r * weights) ** 2)), float(theta[0]))
+        models[kind] = model
+        b_fit = float(theta[1])
+    dof = max(y.size - 4, 1)
+    s2 = 1.0 if known_sd else out["open"][0] / dof
+    gain = float((out["open"][0] - out["closed"][0]) / max(s2, 1e-300))
+    best = "closed" if gain > _UNDIFFUSED_RIM_DCHI2 else "open"
+    info = {"chosen": best, "chi2_open": out["open"][0], "chi2_closed": out["closed"][0],
+            "log10_dt_open": out["open"][1], "log10_dt_closed": out["closed"][1],
+            "closed_minus_open_delta_chi2": -gain,
+            "log10_dt_shift": float(out["closed"][1] - out["open"][1]) * (1 if best == "open" else -1)}
+    return best, info, models[best]
+
+
+def _element_step(x, y, guess):
+    """Where a step found in the element itself is, and how wide it looks.
+
+    The position is where the (3-point smoothed) profile crosses half-way between
+    its two ends, nearest ``guess`` (the largest 3-point step sits on one flank of
+    a wide diffused step, not at its middle); the width is the distance between
+    the 10 % and 90 % crossings, so the fitted position may range over it.
+    """
+    from zoneprofile.diffusion._steps import _running_mean
+
+    k = min(4, max(x.size // 4, 1))
+    lo_end, hi_end = float(np.median(y[:k])), float(np.median(y[-k:]))
+    span = hi_end - lo_end
+    if span == 0:
+        return float(guess), 0.0
+    f = (_running_mean(y, 3) - lo_end) / span
+
+    def crossing(level, near):
+        s = np.sign(f - level)
+        idx = np.flatnonzero(s[:-1] * s[1:] <= 0)
+        if idx.size == 0:
+            return None
+        pts = [x[i] + (x[i + 1] - x[i]) * (level - f[i]) / (f[i + 1] - f[i]) if f[i + 1] != f[i] else x[i]
+               for i in idx]
+        return float(min(pts, key=lambda p: abs(p - near)))
+
+    mid = crossing(0.5, guess)
+    if mid is None:
+        return float(guess), 0.0
+    a, b = crossing(0.1, mid), crossing(0.9, mid)
+    width = abs(b - a) if a is not None and b is not None else 0.0
+    return mid, float(width)
+
+
+def _profile_upper_log10_dt(model, y, weights, best, chi2, s2, log_hi, level=3.84):
+    """Largest log10 D·t with Δχ² ≤ ``level`` (values refitted; profile likelihood, 95 %).
+
+    Linear-in-values models only (None otherwise); the upper bound reported for a
+    boundary that is not resolved.
+    """
+    if not hasattr(model, "basis_predictions"):
+        return None
+    from scipy.optimize import brentq
+
+    def excess(lg):
+        basis = model.basis_predictions(lg, best[1]) * weights[None, :]
+        v, *_ = np.linalg.lstsq(basis.T, y * weights, rcond=None)
+        r = basis.T @ v - y * weights
+        return float((r @ r - chi2) / s2) - level
+
+    lo = float(best[0])
+    hi = lo
+    while hi < log_hi:
+        hi = min(hi + 0.25, log_hi)
+        if excess(hi) > 0:
+            return float(brentq(excess, max(lo, hi - 0.25), hi, xtol=1e-3))
+    return float(log_hi)
+
+
+def _spot_from_an_step(grid, an_x, an_vals, b0, window, spacing):
+    """Gaussian spot FWHM (µm) estimated from the apparent width of a sharp An step, or None.
+
+    Used only when no spot size is given and An comes from the same spots. A
+    step wider than a 10 µm spot (REFERENCES.md §2: defocused beams 5–10 µm) is
+    growth zoning, not blur, and gives no estimate.
+    """
+    from zoneprofile.diffusion.resolution import FWHM_PER_SIGMA
+
+    _, probe = _frozen_an(grid, an_x, an_vals, None, b0, window)
+    if not probe.get("sharpened"):
+        return None
+    fwhm = float(probe["apparent_width_sd_um"]) * FWHM_PER_SIGMA
+    if not 0.05 * spacing < fwhm <= 10.0:
+        return None
+    return fwhm
+
+
 # --------------------------------------------------------------------------- fitting core
 def _coarse_start(model, y, weights, log_bounds, b_bounds, b_start, fixed_b):
     """Grid search over (log10 D·t, boundary), values by linear least squares."""
@@ -353,6 +473,7 @@ def _fit_boundary(
             an_beam_um = beam_um
 
     spacing = float(np.median(np.diff(x)))
+    element_width = 0.0
     if boundary_um is None:
         fixed = False
         source = None
@@ -368,7 +489,7 @@ def _fit_boundary(
             cand = find_boundaries(x, y)
             if not cand:
                 raise InputError("no boundary found: the profile is too short")
-            source = cand[0]
+            source, element_width = _element_step(x, y, cand[0])
         b0 = float(source)
     else:
         b0 = float(boundary_um)
@@ -398,7 +519,8 @@ def _fit_boundary(
             f"too few points on either side of the boundary at {b0:g} µm "
             f"({n_left} rimward, {n_right} coreward; need {_MIN_SIDE_POINTS} each)"
         )
-    window = float(boundary_window_um) if boundary_window_um is not None else max(3.0 * spacing, 5.0)
+    window = float(boundary_window_um) if boundary_window_um is not None else max(3.0 * spacing, 5.0,
+                                                                                  0.5 * element_width)
     b_lo = max(b0 - window, x[_MIN_SIDE_POINTS - 1])
     b_hi = min(b0 + window, x[-_MIN_SIDE_POINTS])
     if fixed or b_hi <= b_lo:
@@ -411,9 +533,21 @@ def _fit_boundary(
 
     at_rim = (segment_um is None or segment_um[0] <= x_all[0]) and x[0] <= max(3.0 * spacing, 0.1 * (x[-1] - x[0]))
     grid = _build_grid(x, at_rim, geometry, radius_um, beam_um, beam_shape, n_cells)
+    beam_from_an = None
+    if needs_an and beam_um is None and an_beam_um is None and an_distance_um is None:
+        # no spot given, An measured by the same spots: An does not diffuse on these
+        # timescales, so the apparent width of a sharp An step is the spot's blur
+        beam_from_an = _spot_from_an_step(grid, an_x, an_vals, b0, window, spacing)
+        if beam_from_an is not None:
+            beam_um = an_beam_um = beam_from_an
+            beam_shape = "gaussian"
+            grid = _build_grid(x, at_rim, geometry, radius_um, beam_um, beam_shape, n_cells)
+    if rim not in ("open", "closed", "auto"):
+        raise InputError(f"rim must be 'open', 'closed' or 'auto', got '{rim}'")
     rim_kind = rim if at_rim else "closed"
-    if rim_kind not in ("open", "closed"):
-        raise InputError(f"rim must be 'open' or 'closed', got '{rim}'")
+    rim_auto = rim_kind == "auto"
+    if rim_auto:
+        rim_kind = "open"  # provisional; chosen by the data below
 
     law_kwargs = {"fo2_pa": fo2_pa, "pressure_pa": None if pressure_mpa is None else float(pressure_mpa) * 1e6,
                   "direction": direction}
@@ -427,7 +561,7 @@ def _fit_boundary(
         an_cells_at, an_info = _frozen_an(grid, an_x, an_vals, an_beam_um, b0, window)
         tie_at = None
         if fixed and an_info.get("sharpened"):
-            g0, g1 = an_info["gap_um"]
+            g0, g1 = an_info["bracket_um"]
             if g0 - 1e-9 <= b0 <= g1 + 1e-9:
                 tie_at = b0  # the given boundary is this An step: put the An step exactly there
         x_an_cells = an_cells_at(tie_at)
@@ -474,7 +608,11 @@ def _fit_boundary(
     if x_an_cells is not None:
         comp_warn["x_an"] = an_vals[(an_x >= x[0]) & (an_x <= x[-1])] / 100.0
     warnings += law_obj.range_warnings(t0 if path is None else path.nominal_c, **comp_warn)
-    if beam_um is None:
+    if beam_from_an is not None:
+        warnings.append(f"no spot size given (beam_um): a Gaussian spot of {beam_from_an:.2g} µm FWHM was "
+                        "estimated from the apparent width of the An step (An does not diffuse); give the "
+                        "beam or spot diameter if it is known")
+    elif beam_um is None:
         warnings.append("no spot size given (beam_um): the model was compared with the data point by point; "
                         "give the beam or spot diameter so the resolution is accounted for")
 
@@ -489,12 +627,25 @@ def _fit_boundary(
         # the melt changed when An changed: tie the element step to the An step and
         # choose its place inside the gap between the An points that bracket it
         b0, x_an_cells, position_candidates = _tie_to_an_step(
-            problem, an_cells_at, an_info["gap_um"], t0, y, weights, (log_lo, log_hi), sd is not None)
+            problem, an_cells_at, an_info["gap_um"], t0, y, weights, (log_lo, log_hi), sd is not None,
+            an_position=(an_info["position_um"], an_info.get("position_se_um") or math.inf))
         problem.x_an_cells = x_an_cells
         b_lo, b_hi, fixed = b0 - 1e-6, b0 + 1e-6, True
         an_info["tied_position_um"] = b0
         an_info["position_candidates"] = position_candidates
-    model0 = problem.model(t0)
+    rim_choice = model0 = None
+    if rim_auto and not nonlinear:
+        rim_kind, rim_choice, model0 = _choose_rim(problem, t0, y, weights, (log_lo, log_hi), (b_lo, b_hi), b0, fixed,
+                                            sd is not None)
+        problem.rim = rim_kind
+        if abs(rim_choice["log10_dt_shift"]) > 0.05:
+            other = "closed" if rim_kind == "open" else "open"
+            gain = rim_choice["closed_minus_open_delta_chi2"]
+            warnings.append(
+                f"the rim was taken as {rim_kind} (Δχ² of a closed rim {gain:+.2g}); a {other} rim would "
+                f"change log10 D·t by {rim_choice['log10_dt_shift']:+.2f}: give --rim if you know it")
+    if model0 is None:
+        model0 = problem.model(t0)
     if nonlinear:
         # start from the linear model with D at the reference composition
         lin = Problem(**{**problem.__dict__, "nonlinear": False, "_B": problem.data_matrix})
@@ -521,6 +672,20 @@ def _fit_boundary(
     resid = (pred - y)
     chi2 = float(np.sum((resid * weights) ** 2))
     dof = max(y.size - sum(vary), 1)
+
+    # can the data tell this profile from an undiffused step seen through the spot?
+    # Δχ² of the fit with D·t at its lower bound (values refitted), in units of the
+    # residual variance when no precision was given
+    if hasattr(model0, "basis_predictions"):
+        basis = model0.basis_predictions(log_lo, best[1]) * weights[None, :]
+        v_floor, *_ = np.linalg.lstsq(basis.T, y * weights, rcond=None)
+        r_floor = basis.T @ v_floor - y * weights
+    else:
+        r_floor = (model0.predict([log_lo, best[1], *best[2:]]) - y) * weights
+    s2 = 1.0 if sd is not None else max(chi2 / dof, 1e-300)
+    floor_delta_chi2 = float((r_floor @ r_floor - chi2) / s2)
+    def upper_log10_dt():  # only needed (and computed) when the boundary is not resolved
+        return _profile_upper_log10_dt(model0, y, weights, best, chi2, s2, log_hi)
 
     params_report = {}
     bounds_hit = []
@@ -553,6 +718,8 @@ def _fit_boundary(
         "path": path, "noise_refits": int(noise_refits), "resolution_var_um2": resolution_var_um2,
         "log_bounds": (log_lo, log_hi), "lmfit": out,
         "position_candidates": an_info.get("position_candidates") or [],
+        "floor_delta_chi2": floor_delta_chi2,
+        "profile_upper_log10_dt": upper_log10_dt,
     }
     result = propagate(context)
     result.warnings = warnings + result.warnings
@@ -569,14 +736,16 @@ def _fit_boundary(
         "partition_model": partition if coupling else None,
         "partition_a_j_mol": None if partition_ab is None else partition_ab[0],
         "partition_b_j_mol": None if partition_ab is None else partition_ab[1],
-        "reference_composition": reference, "rim": rim_kind, "geometry": geometry,
+        "reference_composition": reference, "rim": rim_kind, "rim_selection": rim_choice, "geometry": geometry,
         "radius_um": radius_um, "beam_um": beam_um, "beam_shape": beam_shape,
         "beam_sigma_um": beam_sigma_um(beam_um, beam_shape), "an_beam_um": an_beam_um,
+        "beam_um_estimated_from_an": beam_from_an,
         "resolution_sd_um": math.sqrt(resolution_var_um2), "grid_cells": grid.n,
         "solver": "implicit Crank-Nicolson with Picard iteration" if nonlinear else "spectral (eigendecomposition)",
         "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa, "direction": direction,
         "path": None if path is None else path.to_dict(),
         "segment_um": [float(x[0]), float(x[-1])],
+        "undiffused_step_delta_chi2": floor_delta_chi2,
     }
     return result
 

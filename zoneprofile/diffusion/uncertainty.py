@@ -34,6 +34,8 @@ __all__ = ["FitResult", "propagate", "PERCENTILES"]
 SECONDS_PER_DAY = 86400.0
 PERCENTILES = {"p2_5": 2.5, "p16": 16.0, "median": 50.0, "p84": 84.0, "p97_5": 97.5}
 _NODES = np.array([-2.5, -1.25, 1.25, 2.5])
+#: χ² quantile (1 dof, 95 %) an undiffused step must be worse by for a boundary to count as resolved
+_UNDIFFUSED_DCHI2 = 3.84
 
 
 @dataclass
@@ -343,13 +345,29 @@ def propagate(ctx) -> FitResult:
     dt_um2 = 10.0 ** (best[0] + 12.0)
     res_var = ctx["resolution_var_um2"]
     p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
-    resolved = bool(2.0 * dt_um2 > res_var and p_low > log_lo + 0.1 and not at_floor)
+    floor_delta = ctx.get("floor_delta_chi2")
+    step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
+    # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
+    dt_low_um2 = 10.0 ** (best[0] + float(np.percentile(eps, 2.5)) + 12.0)
+    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected)
+    if not step_rejected:
+        warnings.append(
+            f"an undiffused step seen through the spot fits the data about as well (Δχ² = {floor_delta:.2g} "
+            f"< {_UNDIFFUSED_DCHI2:g}, 95 %)"
+        )
     if not resolved:
-        td["upper_bound"] = td["p97_5"]
+        up = ctx.get("profile_upper_log10_dt")
+        up = up() if callable(up) else up
+        if up is not None and path is None:
+            # profile-likelihood bound on D·t (95 %), spread by temperature (and obliquity)
+            ub_draws = 10.0 ** (up + g) * factor / law.d_m2_s(t_draw, perturb=perturb or None, **comp)
+            td["upper_bound"] = float(np.percentile(ub_draws / SECONDS_PER_DAY, 97.5))
+        else:
+            td["upper_bound"] = td["p97_5"]
         warnings.append(
             f"the relaxed width (√(2·D·t) = {math.sqrt(2 * dt_um2):.2g} µm) is not larger than the "
-            f"resolution (spot and point spacing, {math.sqrt(res_var):.2g} µm sd): the time is an upper "
-            f"bound only (< {td['p97_5']:.3g} days)"
+            f"resolution (spot and point spacing, {math.sqrt(res_var):.2g} µm sd) with 95 % confidence: the "
+            f"time is an upper bound only (< {td['upper_bound']:.3g} days)"
         )
     else:
         td["upper_bound"] = None

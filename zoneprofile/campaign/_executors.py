@@ -1,0 +1,206 @@
+"""Where crystal tasks run: this process, local worker processes, or a Dask cluster.
+
+Each executor takes the list of tasks and a callback ``on_done(index, record)``
+called in this process as each crystal finishes (in completion order). Records
+depend only on their task (its seed included), so every executor gives the
+same records.
+"""
+
+from __future__ import annotations
+
+import logging
+import multiprocessing
+import sys
+import threading
+import time
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
+
+from zoneprofile._validation import InputError
+
+__all__ = ["execute", "Progress", "PRELOAD", "CONNECT_TIMEOUT"]
+
+#: How long to wait for a Dask scheduler before giving up.
+CONNECT_TIMEOUT = "10s"
+
+#: Modules imported once in the fork server, so each worker starts warm.
+PRELOAD = [
+    "numpy",
+    "scipy",
+    "pandas",
+    "zoneprofile.campaign._pipeline",
+    "zoneprofile.traverse",
+    "zoneprofile.zoning",
+    "zoneprofile.diffusion",
+    "zoneprofile.maps",
+    "zoneprofile.chronology",
+]
+
+
+class Progress:
+    """A plain-text progress bar on stderr, drawn only on a terminal."""
+
+    def __init__(self, total: int, *, enabled: bool = True, stream=None, width: int = 28):
+        self.stream = stream if stream is not None else sys.stderr
+        self.enabled = bool(enabled) and hasattr(self.stream, "isatty") and self.stream.isatty()
+        self.total = max(int(total), 0)
+        self.width = width
+        self.start = time.monotonic()
+        self._last = 0.0
+
+    def update(self, done: int, *, cached: int = 0, failed: int = 0, force: bool = False) -> None:
+        if not self.enabled or self.total == 0:
+            return
+        now = time.monotonic()
+        if not force and now - self._last < 0.1 and done < self.total:
+            return
+        self._last = now
+        frac = done / self.total
+        filled = int(round(frac * self.width))
+        bar = "#" * filled + "." * (self.width - filled)
+        elapsed = now - self.start
+        computed = done - cached
+        eta = ""
+        if 0 < computed and done < self.total:
+            rate = elapsed / computed
+            eta = f"  about {rate * (self.total - done):.0f} s left"
+        text = (f"\rcrystals {done:>{len(str(self.total))}}/{self.total} [{bar}] {100 * frac:3.0f}%"
+                f"  {cached} from cache  {failed} failed{eta}   ")
+        self.stream.write(text)
+        self.stream.flush()
+
+    def close(self) -> None:
+        if self.enabled and self.total:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def _failed_record(task: dict, message: str) -> dict:
+    from zoneprofile.campaign._pipeline import _base_record
+
+    record = _base_record(task)
+    record["error"] = message
+    return record
+
+
+def _guarded(process, task):
+    """Run ``process(task)``; an unexpected exception becomes a failed record, interrupts pass."""
+    try:
+        return process(task)
+    except (KeyboardInterrupt, SystemExit):
+        raise
+    except Exception as exc:  # noqa: BLE001 - one crystal must not sink the campaign
+        text = " ".join(str(exc).split()) or "no message"
+        return _failed_record(task, f"internal error ({type(exc).__name__}): {text}")
+
+
+def _serial(tasks, process, on_done):
+    for i, task in enumerate(tasks):
+        on_done(i, _guarded(process, task))
+
+
+def _context():
+    """Start method for worker processes.
+
+    ``fork`` starts workers instantly with everything already imported; it is
+    used where it is safe (Linux, Python < 3.12, no other Python thread
+    running). Elsewhere a fork server, preloaded with the pipeline's modules.
+    """
+    methods = multiprocessing.get_all_start_methods()
+    if "fork" in methods and sys.version_info < (3, 12) and threading.active_count() == 1 \
+            and sys.platform.startswith("linux"):
+        return multiprocessing.get_context("fork")
+    if "forkserver" in methods:
+        ctx = multiprocessing.get_context("forkserver")
+        try:
+            ctx.set_forkserver_preload(PRELOAD)
+        except (ValueError, RuntimeError):  # pragma: no cover - already started
+            pass
+        return ctx
+    return multiprocessing.get_context("spawn")  # pragma: no cover - Windows, macOS defaults
+
+
+def _processes(tasks, process, on_done, workers):
+    ctx = _context()
+    executor = ProcessPoolExecutor(max_workers=workers, mp_context=ctx)
+    try:
+        futures = {executor.submit(process, task): i for i, task in enumerate(tasks)}
+        for future in as_completed(futures):
+            i = futures[future]
+            try:
+                record = future.result()
+            except BrokenProcessPool:
+                record = _failed_record(tasks[i], "internal error: the worker process running this crystal died "
+                                                  "(out of memory?); run again to retry it")
+            except Exception as exc:  # noqa: BLE001 - raised inside the worker
+                text = " ".join(str(exc).split()) or "no message"
+                record = _failed_record(tasks[i], f"internal error ({type(exc).__name__}): {text}")
+            on_done(i, record)
+    except BaseException:
+        executor.shutdown(wait=False, cancel_futures=True)
+        raise
+    executor.shutdown(wait=True)
+
+
+def _dask(tasks, process, on_done, workers, scheduler):
+    try:
+        from distributed import Client, LocalCluster
+        from distributed import as_completed as dask_completed
+    except ImportError:
+        message = ("--scheduler needs the optional Dask support: pip install 'zoneprofile[distributed]' "
+                   "(or run with --workers N instead)")
+        raise InputError(message) from None
+    cluster = None
+    if scheduler == "local-cluster":
+        cluster = LocalCluster(n_workers=max(int(workers), 1), threads_per_worker=1, processes=True,
+                               host="127.0.0.1", dashboard_address=None, silence_logs=logging.ERROR)
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(scheduler, timeout=CONNECT_TIMEOUT)
+        except (OSError, TimeoutError, ValueError) as exc:
+            message = f"cannot reach the Dask scheduler at '{scheduler}' ({type(exc).__name__}); check the address"
+            raise InputError(message) from None
+    try:
+        keys = [f"zoneprofile-crystal-{task['key']}" for task in tasks]
+        futures = client.map(process, tasks, key=keys, pure=False)
+        index = {f.key: i for i, f in enumerate(futures)}
+        for future in dask_completed(futures):
+            i = index[future.key]
+            try:
+                record = future.result()
+            except (KeyboardInterrupt, SystemExit):
+                raise
+            except Exception as exc:  # noqa: BLE001 - a lost worker; reported per crystal
+                text = " ".join(str(exc).split()) or type(exc).__name__
+                record = _failed_record(tasks[i], f"internal error on the Dask cluster: {text}")
+            on_done(i, record)
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+def execute(tasks, process, on_done, *, workers: int = 1, scheduler: str | None = None) -> None:
+    """Run ``process(task)`` for every task and call ``on_done(index, record)`` as each finishes.
+
+    Parameters
+    ----------
+    tasks : list of dict
+    process : callable
+        Importable by name in worker processes (a module-level function).
+    on_done : callable
+    workers : int
+        Local worker processes (1 = this process). With ``scheduler =
+        "local-cluster"``: the number of Dask workers started.
+    scheduler : str, optional
+        A Dask scheduler address (``tcp://host:8786``) or ``"local-cluster"``.
+    """
+    if not tasks:
+        return
+    if scheduler:
+        _dask(tasks, process, on_done, workers, scheduler)
+    elif workers > 1 and len(tasks) > 1:
+        _processes(tasks, process, on_done, min(int(workers), len(tasks)))
+    else:
+        _serial(tasks, process, on_done)

@@ -1,0 +1,577 @@
+"""The campaign file: reading, validating and resolving a TOML campaign.
+
+Layout of a campaign file (see ``docs/run-a-campaign.md`` for every key)::
+
+    title = "..."                 # free text
+    seed = 7                      # campaign seed; each crystal's seed derives from it and its id
+    draws = 1000                  # Monte Carlo draws per fitted boundary
+
+    [defaults]                    # settings for every crystal
+    mineral = "plagioclase"
+    elements = ["Mg", "Sr"]
+    temperature_c = 1000
+    temperature_sd_c = 20
+
+    [samples.NAME]                # one table per sample; may override any setting
+    temperature_c = 1010
+
+    [[crystals]]                  # one block per crystal; may override any setting
+    sample = "NAME"
+    id = "p01"
+    traverse = "data/p01.csv"     # paths relative to this file
+
+Settings are merged crystal over sample over ``[defaults]`` over built-in
+defaults. Every problem raises :class:`~zoneprofile.InputError` naming the
+campaign file, the line and the key.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from zoneprofile._validation import InputError
+from zoneprofile.campaign._toml_lines import KeyLines
+
+__all__ = ["Campaign", "CrystalSpec", "load_campaign", "MINERALS", "crystal_seed"]
+
+# mineral -> zoning column, elements that can be dated, default elements, value column per element
+MINERALS: dict[str, dict] = {
+    "plagioclase": {
+        "column": "An",
+        "elements": ("Mg", "Sr", "Ba"),
+        "default_elements": ("Mg",),
+        "value": {"Mg": "Mg_ppm", "Sr": "Sr_ppm", "Ba": "Ba_ppm"},
+    },
+    "alkali-feldspar": {
+        "column": "Or",
+        "elements": ("Sr", "Ba"),
+        "default_elements": ("Ba",),
+        "value": {"Sr": "Sr_ppm", "Ba": "Ba_ppm"},
+    },
+    "olivine": {
+        "column": "Fo",
+        "elements": ("FeMg",),
+        "default_elements": ("FeMg",),
+        "value": {"FeMg": "Fo"},
+    },
+    "pyroxene": {
+        "column": "Mg_number",
+        "elements": ("FeMg",),
+        "default_elements": ("FeMg",),
+        "value": {"FeMg": "Mg_number"},
+    },
+    # quartz has no major-element zoning to recalculate: its Ti (ppm) comes from a trace table
+    "quartz": {
+        "column": "Ti_ppm",
+        "elements": ("Ti",),
+        "default_elements": ("Ti",),
+        "value": {"Ti": "Ti_ppm"},
+    },
+}
+
+# Built-in defaults (documented in docs/run-a-campaign.md).
+BUILTIN = {
+    "mineral": "plagioclase",
+    "temperature_sd_c": 0.0,
+    "beam_um": None,
+    "beam_shape": "gaussian",
+    "trace_beam_um": None,
+    "trace_beam_shape": "square",
+    "rim": "start",
+    "stage_units": None,
+    "boundaries": "recharge",
+    "boundary_window_um": None,
+    "laws": {},
+    "noise_sd": None,
+    "include_flagged": False,
+    "obliquity_deg": None,
+    "fo2_pa": None,
+    "pressure_mpa": None,
+    "solver_cells": None,
+    "sheet": None,
+    "comment": "",
+}
+
+_TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache", "defaults", "samples", "crystals")
+_SETTING_KEYS = (
+    "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
+    "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
+    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "comment",
+)
+_CRYSTAL_KEYS = _SETTING_KEYS + (
+    "sample", "id", "traverse", "trace", "map", "spots", "line", "pixel_um", "channel", "width_px", "rim_normal",
+)
+_INPUT_KEYS = {"traverse": "traverse", "trace": "trace", "map": "map", "spots": "spots"}
+
+
+@dataclass
+class CrystalSpec:
+    """One crystal of a campaign: its inputs and its merged settings."""
+
+    sample: str
+    crystal: str
+    index: int
+    line: int | None
+    inputs: list[dict] = field(default_factory=list)  # {role, path (absolute), rel, key}
+    parameters: dict = field(default_factory=dict)
+
+    @property
+    def label(self) -> str:
+        return f"{self.sample}/{self.crystal}"
+
+
+@dataclass
+class Campaign:
+    """A validated campaign, paths resolved."""
+
+    path: Path
+    folder: Path
+    sha256: str
+    title: str
+    comment: str
+    seed: int
+    draws: int
+    allow_outside: bool
+    cache_dir: Path | None
+    defaults: dict
+    samples: dict
+    crystals: list[CrystalSpec]
+
+    def settings(self) -> dict:
+        """The campaign-level parameters as written into provenance."""
+        return {
+            "title": self.title,
+            "comment": self.comment,
+            "seed": self.seed,
+            "draws": self.draws,
+            "allow_outside_paths": self.allow_outside,
+            "defaults": self.defaults,
+            "samples": self.samples,
+        }
+
+
+def crystal_seed(campaign_seed: int, sample: str, crystal: str) -> int:
+    """Seed of one crystal, from the campaign seed and the crystal's id only.
+
+    Independent of execution order, worker count and scheduler, so a crystal
+    gives the same draws wherever and whenever it runs.
+    """
+    text = f"{int(campaign_seed)}\x1f{sample}\x1f{crystal}".encode("utf-8")
+    return int.from_bytes(hashlib.sha256(text).digest()[:4], "big")
+
+
+class _Context:
+    def __init__(self, path: Path, text: str):
+        self.path = path
+        self.lines = KeyLines(text)
+
+    def fail(self, where: tuple, message: str, *, what: str | None = None) -> InputError:
+        line = self.lines.line_of(where)
+        key = what if what is not None else _describe(where)
+        parts = []
+        if line is not None:
+            parts.append(f"line {line}")
+        if key:
+            parts.append(key)
+        head = ", ".join(parts)
+        err = InputError(f"{head}: {message}" if head else message, path=self.path)
+        err.row, err.column = line, key
+        return err
+
+
+def _describe(where: tuple) -> str:
+    """'key 'x' of crystal #3' style description of a key path."""
+    where = tuple(where)
+    if not where:
+        return ""
+    if where[0] == "crystals" and len(where) >= 2 and isinstance(where[1], int):
+        rest = ".".join(str(p) for p in where[2:])
+        return f"key '{rest}' of crystal #{where[1] + 1}" if rest else f"crystal #{where[1] + 1}"
+    if where[0] == "samples" and len(where) >= 2:
+        rest = ".".join(str(p) for p in where[2:])
+        return f"key '{rest}' of sample '{where[1]}'" if rest else f"sample '{where[1]}'"
+    return "key '" + ".".join(str(p) for p in where) + "'"
+
+
+def _suggest(name: str, options) -> str:
+    close = difflib.get_close_matches(name, list(options), n=1, cutoff=0.6)
+    if close:
+        return f"; did you mean '{close[0]}'?"
+    return "; known keys: " + ", ".join(sorted(options))
+
+
+def _check_keys(ctx, table: dict, where: tuple, allowed) -> None:
+    for key in table:
+        if key not in allowed:
+            raise ctx.fail(where + (key,), f"unknown key{_suggest(key, allowed)}")
+
+
+def _is_number(x) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool)
+
+
+def _number(ctx, value, where, *, low=None, high=None, unit="", integer=False):
+    if integer:
+        ok = isinstance(value, int) and not isinstance(value, bool)
+        if not ok:
+            raise ctx.fail(where, f"expected a whole number, found {type(value).__name__} {value!r}")
+    elif not _is_number(value):
+        raise ctx.fail(where, f"expected a number, found {type(value).__name__} {value!r}")
+    if not math.isfinite(float(value)):
+        raise ctx.fail(where, f"expected a finite number, found {value!r}")
+    u = f" {unit}" if unit else ""
+    if low is not None and value < low:
+        raise ctx.fail(where, f"must be at least {low:g}{u}, found {value:g}{u}")
+    if high is not None and value > high:
+        raise ctx.fail(where, f"must be at most {high:g}{u}, found {value:g}{u}")
+    return int(value) if integer else float(value)
+
+
+def _text(ctx, value, where, *, choices=None):
+    if not isinstance(value, str):
+        raise ctx.fail(where, f"expected text in quotes, found {type(value).__name__} {value!r}")
+    if choices is not None and value not in choices:
+        lowered = {c.lower(): c for c in choices}
+        if value.strip().lower() in lowered:
+            return lowered[value.strip().lower()]
+        hint = difflib.get_close_matches(value, list(choices), n=1, cutoff=0.5)
+        more = f"; did you mean '{hint[0]}'?" if hint else ""
+        raise ctx.fail(where, f"unknown value '{value}', choose one of: {', '.join(choices)}{more}")
+    return value
+
+
+def _boolean(ctx, value, where):
+    if not isinstance(value, bool):
+        raise ctx.fail(where, f"expected true or false, found {value!r}")
+    return value
+
+
+def _known_laws():
+    try:
+        from zoneprofile.diffusion import LAWS
+    except ImportError:  # pragma: no cover - the diffusion stage ships with the package
+        return None
+    return LAWS
+
+
+def _no_default_law(element: str, mineral: str) -> str | None:
+    """Why ``element`` in ``mineral`` has no default law, or None when it has one."""
+    try:
+        from zoneprofile.diffusion import default_law
+    except ImportError:  # pragma: no cover
+        return None
+    try:
+        default_law(element, mineral)
+    except InputError as exc:
+        text = exc.message.split(";")[0]
+        return text
+    return None
+
+
+def _law_needs(law_id, element: str, mineral: str) -> tuple:
+    """The composition/condition inputs the law for ``element`` needs (empty when unknown)."""
+    try:
+        from zoneprofile.diffusion import default_law, get_law
+
+        law = get_law(law_id) if law_id else default_law(element, mineral)
+    except (ImportError, InputError):
+        return ()
+    return tuple(getattr(law, "needs", ()) or ())
+
+
+def _settings(ctx, table: dict, where: tuple) -> dict:
+    """Validate the setting keys present in ``table``; return them normalised."""
+    out = {}
+    for key, value in table.items():
+        if key not in _SETTING_KEYS:
+            continue
+        w = where + (key,)
+        if key == "mineral":
+            out[key] = _text(ctx, value, w, choices=tuple(MINERALS))
+        elif key == "column":
+            out[key] = _text(ctx, value, w)
+        elif key == "elements":
+            items = [value] if isinstance(value, str) else value
+            if not isinstance(items, list) or not items:
+                raise ctx.fail(w, f"expected a list of element names such as [\"Mg\", \"Sr\"], found {value!r}")
+            names = []
+            for item in items:
+                names.append(_text(ctx, item, w))
+            if len(set(names)) != len(names):
+                raise ctx.fail(w, f"an element is listed twice in {names}")
+            out[key] = names
+        elif key == "temperature_c":
+            out[key] = _number(ctx, value, w, low=400, high=1500, unit="°C")
+        elif key == "temperature_sd_c":
+            out[key] = _number(ctx, value, w, low=0, high=300, unit="°C")
+        elif key in ("beam_um", "trace_beam_um"):
+            out[key] = _number(ctx, value, w, low=0, high=200, unit="µm")
+        elif key in ("beam_shape", "trace_beam_shape"):
+            out[key] = _text(ctx, value, w, choices=("gaussian", "square"))
+        elif key == "rim":
+            out[key] = _text(ctx, value, w, choices=("start", "end"))
+        elif key == "stage_units":
+            out[key] = _text(ctx, value, w, choices=("um", "mm"))
+        elif key == "boundaries":
+            if isinstance(value, str):
+                out[key] = _text(ctx, value, w, choices=("recharge", "all"))
+            elif isinstance(value, list) and value:
+                out[key] = [_number(ctx, v, w, low=0, unit="µm") for v in value]
+            else:
+                raise ctx.fail(w, f"expected \"recharge\", \"all\" or a list of positions in µm, found {value!r}")
+        elif key == "boundary_window_um":
+            out[key] = _number(ctx, value, w, low=1, high=10000, unit="µm")
+        elif key == "laws":
+            if not isinstance(value, dict):
+                raise ctx.fail(w, f"expected a table such as {{ Mg = \"law id\" }}, found {value!r}")
+            laws = _known_laws()
+            chosen = {}
+            for element, law_id in value.items():
+                lw = w + (element,)
+                law_id = _text(ctx, law_id, lw)
+                if laws is not None and law_id.strip().lower() not in laws:
+                    raise ctx.fail(lw, f"unknown law '{law_id}'{_suggest(law_id, laws)} (see 'zoneprofile laws')")
+                chosen[element] = law_id
+            out[key] = chosen
+        elif key == "noise_sd":
+            out[key] = _number(ctx, value, w, low=0, high=1e6)
+            if out[key] == 0:
+                raise ctx.fail(w, "must be > 0; leave it out to estimate the noise from the profile")
+        elif key == "include_flagged":
+            out[key] = _boolean(ctx, value, w)
+        elif key == "obliquity_deg":
+            out[key] = _number(ctx, value, w, low=0, high=85, unit="°")
+        elif key == "fo2_pa":
+            out[key] = _number(ctx, value, w, low=1e-20, high=1e5, unit="Pa")
+        elif key == "pressure_mpa":
+            out[key] = _number(ctx, value, w, low=0, high=5000, unit="MPa")
+        elif key == "solver_cells":
+            out[key] = _number(ctx, value, w, low=50, high=5000, integer=True)
+        elif key in ("sheet", "comment"):
+            out[key] = _text(ctx, value, w)
+    return out
+
+
+def _resolve_input(ctx, folder: Path, value, where, *, allow_outside: bool) -> tuple[Path, str]:
+    text = _text(ctx, value, where)
+    if not text.strip():
+        raise ctx.fail(where, "empty path")
+    p = Path(text).expanduser()
+    full = (p if p.is_absolute() else folder / p).resolve()
+    try:
+        rel = full.relative_to(folder)
+    except ValueError:
+        if not allow_outside:
+            raise ctx.fail(
+                where,
+                f"path '{text}' leads outside the campaign folder {folder}; move the file into the folder, or "
+                "set allow_outside_paths = true in the campaign file or pass --allow-outside",
+            ) from None
+        rel = None
+    if not full.exists():
+        raise ctx.fail(where, f"input file '{text}' not found (looked for {full})")
+    if full.is_dir():
+        raise ctx.fail(where, f"input '{text}' is a folder, expected a file")
+    if full.stat().st_size == 0:
+        raise ctx.fail(where, f"input file '{text}' is empty")
+    return full, (rel.as_posix() if rel is not None else str(full))
+
+
+def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
+    """Read and validate a campaign file.
+
+    Parameters
+    ----------
+    path : path-like
+        The campaign TOML file. Input paths inside it resolve relative to its
+        folder.
+    allow_outside : bool
+        Accept input paths leading outside the campaign's folder (also set by
+        ``allow_outside_paths = true`` in the file).
+
+    Returns
+    -------
+    Campaign
+
+    Raises
+    ------
+    InputError
+        Naming the file, the line and the key: a syntax error, an unknown key
+        (with the closest known key), a value of the wrong type or out of range,
+        an unknown mineral, element, law or sample, a missing input file, a path
+        leading outside the folder, a duplicated crystal.
+    """
+    p = Path(path)
+    if not p.exists():
+        raise InputError("campaign file not found; check the path", path=p)
+    if p.is_dir():
+        raise InputError("campaign path is a folder; give the .toml file", path=p)
+    raw = p.read_bytes()
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise InputError("campaign file is not UTF-8 text", path=p) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        message = " ".join(str(exc).split())
+        raise InputError(f"not a valid TOML file: {message}", path=p) from None
+    ctx = _Context(p, text)
+    folder = p.resolve().parent
+
+    _check_keys(ctx, doc, (), _TOP_KEYS)
+    title = _text(ctx, doc.get("title", ""), ("title",))
+    comment = _text(ctx, doc.get("comment", ""), ("comment",))
+    seed = _number(ctx, doc.get("seed", 0), ("seed",), low=0, high=2**63 - 1, integer=True)
+    draws = _number(ctx, doc.get("draws", 1000), ("draws",), low=50, high=100000, integer=True)
+    outside = _boolean(ctx, doc.get("allow_outside_paths", False), ("allow_outside_paths",)) or allow_outside
+    cache_value = doc.get("cache", ".zoneprofile-cache")
+    if cache_value is False or cache_value == "":
+        cache_dir = None
+    else:
+        cache_text = _text(ctx, cache_value, ("cache",))
+        cache_dir = (folder / Path(cache_text).expanduser()).resolve()
+
+    defaults_table = doc.get("defaults", {})
+    if not isinstance(defaults_table, dict):
+        raise ctx.fail(("defaults",), "expected a table [defaults]")
+    _check_keys(ctx, defaults_table, ("defaults",), _SETTING_KEYS)
+    defaults = _settings(ctx, defaults_table, ("defaults",))
+
+    samples_table = doc.get("samples", {})
+    if not isinstance(samples_table, dict):
+        raise ctx.fail(("samples",), "expected tables [samples.NAME], one per sample")
+    samples = {}
+    for name, table in samples_table.items():
+        where = ("samples", name)
+        if not isinstance(table, dict):
+            raise ctx.fail(where, f"expected a table [samples.\"{name}\"] with the sample's settings")
+        if not name.strip():
+            raise ctx.fail(where, "sample name is empty")
+        _check_keys(ctx, table, where, _SETTING_KEYS)
+        samples[name] = _settings(ctx, table, where)
+
+    crystals_list = doc.get("crystals")
+    if crystals_list is None:
+        raise InputError("no [[crystals]] blocks; list each crystal with its sample, id and inputs", path=p)
+    if not isinstance(crystals_list, list) or not all(isinstance(c, dict) for c in crystals_list):
+        raise ctx.fail(("crystals",), "expected [[crystals]] blocks, one per crystal")
+    if not crystals_list:
+        raise ctx.fail(("crystals",), "no crystals listed")
+
+    crystals: list[CrystalSpec] = []
+    seen: dict[tuple, int] = {}
+    for i, table in enumerate(crystals_list):
+        where = ("crystals", i)
+        _check_keys(ctx, table, where, _CRYSTAL_KEYS)
+        for required in ("sample", "id"):
+            if required not in table:
+                raise ctx.fail(where, f"missing key '{required}'")
+        sample = _text(ctx, table["sample"], where + ("sample",))
+        if sample not in samples:
+            if samples_table:
+                hint = _suggest(sample, samples)
+                raise ctx.fail(where + ("sample",), f"sample '{sample}' has no [samples.\"{sample}\"] table{hint}")
+            raise ctx.fail(where + ("sample",), f"sample '{sample}' has no [samples.\"{sample}\"] table; add one")
+        crystal = _text(ctx, table["id"], where + ("id",))
+        if not crystal.strip():
+            raise ctx.fail(where + ("id",), "crystal id is empty")
+        if (sample, crystal) in seen:
+            raise ctx.fail(where + ("id",), f"crystal '{crystal}' of sample '{sample}' is listed twice "
+                           f"(first as crystal #{seen[(sample, crystal)] + 1})")
+        seen[(sample, crystal)] = i
+        own = _settings(ctx, table, where)
+        params = dict(BUILTIN)
+        params.update(defaults)
+        params.update(samples[sample])
+        params.update(own)
+        params["laws"] = {**defaults.get("laws", {}), **samples[sample].get("laws", {}), **own.get("laws", {})}
+        mineral = params["mineral"]
+        info = MINERALS[mineral]
+        params.setdefault("column", info["column"])
+        if "elements" not in params:
+            params["elements"] = list(info["default_elements"])
+        for element in params["elements"]:
+            if element not in info["elements"]:
+                source = where + ("elements",) if "elements" in own else ("defaults", "elements")
+                hint = difflib.get_close_matches(element, info["elements"], n=1, cutoff=0.5)
+                more = f"; did you mean '{hint[0]}'?" if hint else ""
+                raise ctx.fail(source, f"element '{element}' cannot be dated in {mineral}; choose from "
+                               f"{', '.join(info['elements'])}{more}", what=_describe(where + ("elements",)))
+        for element in params["laws"]:
+            if element not in info["elements"]:
+                raise ctx.fail(where + ("laws",), f"law given for '{element}', which is not an element of "
+                               f"{mineral} ({', '.join(info['elements'])})")
+        for element in params["elements"]:
+            if element not in params["laws"]:
+                problem = _no_default_law(element, mineral)
+                if problem:
+                    source = where + ("elements",) if "elements" in own else ("defaults", "elements")
+                    raise ctx.fail(source, f"{problem}; name one with laws = {{ {element} = \"...\" }}",
+                                   what=_describe(where + ("elements",)))
+        for element in params["elements"]:
+            if "fo2_pa" in _law_needs(params["laws"].get(element), element, mineral) and params.get("fo2_pa") is None:
+                raise ctx.fail(where, f"the {element} law for {mineral} needs the oxygen fugacity: set fo2_pa "
+                               "(Pa) in [defaults], the sample or the crystal's block")
+        if "temperature_c" not in params:
+            raise ctx.fail(where, f"no temperature_c for crystal '{crystal}'; set it in [defaults], "
+                           f"[samples.\"{sample}\"] or the crystal's block")
+
+        inputs = []
+        for key, role in _INPUT_KEYS.items():
+            if key in table:
+                full, rel = _resolve_input(ctx, folder, table[key], where + (key,), allow_outside=outside)
+                inputs.append({"role": role, "path": str(full), "rel": rel, "key": key})
+        roles = {item["role"] for item in inputs}
+        if mineral == "quartz" and "traverse" in roles:
+            raise ctx.fail(where + ("traverse",), "quartz has no microprobe recalculation here; give its Ti "
+                           "profile as trace = \"...\" (distance_um, Ti_ppm)")
+        if not roles & {"traverse", "map", "trace"}:
+            raise ctx.fail(where, f"crystal '{crystal}' has no input; give traverse = \"...\", map = \"...\" "
+                           "or trace = \"...\"")
+        if "map" in roles:
+            if "spots" not in roles:
+                raise ctx.fail(where + ("map",), "a map needs spots = \"...\" (spot analyses to calibrate it)")
+            if "line" not in table:
+                raise ctx.fail(where + ("map",), "a map needs line = [x0, y0, x1, y1] (pixels, from the rim inward)")
+        elif "spots" in roles or "line" in table:
+            key = "spots" if "spots" in roles else "line"
+            raise ctx.fail(where + (key,), f"'{key}' is given without map = \"...\"")
+        if "line" in table:
+            line = table["line"]
+            if not isinstance(line, list) or len(line) != 4:
+                raise ctx.fail(where + ("line",), f"expected [x0, y0, x1, y1] in pixels, found {line!r}")
+            params["line"] = [_number(ctx, v, where + ("line",), low=0) for v in line]
+            if params["line"][:2] == params["line"][2:]:
+                raise ctx.fail(where + ("line",), "the line starts and ends at the same pixel")
+        if "pixel_um" in table:
+            params["pixel_um"] = _number(ctx, table["pixel_um"], where + ("pixel_um",), low=1e-3, high=1000, unit="µm")
+        if "channel" in table:
+            params["channel"] = _text(ctx, table["channel"], where + ("channel",))
+        if "width_px" in table:
+            params["width_px"] = _number(ctx, table["width_px"], where + ("width_px",), low=1, high=101, integer=True)
+        if "rim_normal" in table:
+            params["rim_normal"] = _boolean(ctx, table["rim_normal"], where + ("rim_normal",))
+        params["draws"] = draws
+        params["seed"] = crystal_seed(seed, sample, crystal)
+        crystals.append(CrystalSpec(sample, crystal, i, ctx.lines.line_of(where), inputs, params))
+
+    return Campaign(
+        path=p.resolve(),
+        folder=folder,
+        sha256=hashlib.sha256(raw).hexdigest(),
+        title=title,
+        comment=comment,
+        seed=seed,
+        draws=draws,
+        allow_outside=outside,
+        cache_dir=cache_dir,
+        defaults=defaults,
+        samples=samples,
+        crystals=crystals,
+    )

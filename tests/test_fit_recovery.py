@@ -224,3 +224,28 @@ def test_sharp_olivine_step_gives_a_finite_upper_bound():
     assert r.resolved is False
     # D ≈ 1e-17 m²/s at 1100 °C: a relaxed width below ~1 µm is well under a day
     assert 0 < r.time_days["upper_bound"] < 5.0
+
+
+def test_sr_across_an_step_between_zoned_zones():
+    # Self-consistency (invented profile, our forward model): zones with continuous
+    # zoning either side of the An step. Flattening the zones into two plateaus
+    # once made a 15-day Sr boundary come out at ~100 days; each side of the An
+    # step is now a line, so the time comes back.
+    import numpy as np
+
+    from zoneprofile.demo._forward import measure
+    from zoneprofile.diffusion import fit_boundary, simulate_boundary
+
+    def an_true(d):
+        d = np.asarray(d, float)
+        return np.where(d < 31.8, 74.2 + 2.7 * d / 31.8, 66.7 + 5.1 * np.clip((d - 31.8) / 123.0, 0, 1))
+
+    fine = np.arange(0.0, 100.0, 0.25)
+    x = np.arange(0.0, 90.0, 2.0)
+    sr = simulate_boundary(fine, element="Sr", mineral="plagioclase", temperature_c=1000.0, time_days=15.0,
+                           boundary_um=31.8, inner=520.0, outer=560.0, an=an_true)
+    v = measure(fine, sr, x, beam_um=3.0, shape="gaussian")
+    an = measure(fine, an_true(fine), x, beam_um=3.0, shape="gaussian")
+    r = fit_boundary(x, v, element="Sr", mineral="plagioclase", temperature_c=1000.0, an=an,
+                     boundary_um=31.8, beam_um=3.0, draws=100, seed=1)
+    assert 0.8 <= r.time_days["median"] / 15.0 <= 1.25

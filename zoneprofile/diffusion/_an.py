@@ -60,14 +60,30 @@ def _frozen_an(grid, an_x, an_values, an_beam_um, boundary_um, window_um):
     if abs(b0 - a0) < max(4.0 * noise, 0.01):
         return plain
 
-    def resid(p):
-        lo, hi, x0, w = p
-        return lo + (hi - lo) * ndtr((xs - x0) / (w + 1e-9)) - ys
+    # the zones either side usually carry some continuous zoning: each side of the
+    # step is a straight line (value at the step and slope), so a gradient within a
+    # zone is neither flattened into the step's plateaus nor read as part of the step
+    def model(p, x):
+        lo, hi, x0, w, g_lo, g_hi = p
+        f = ndtr((x - x0) / (w + 1e-9))
+        return (1.0 - f) * (lo + g_lo * (x - x0)) + f * (hi + g_hi * (x - x0))
 
-    start = [a0, b0, boundary_um, max(spacing * 0.3, 0.1)]
-    bounds = ([-1, -1, xs[0], 0.0], [2, 2, xs[-1], half])
-    sol = least_squares(resid, start, bounds=bounds)
-    lo, hi, x0, w_app = sol.x
+    def resid(p):
+        return model(p, xs) - ys
+
+    # the slopes enter only when they earn their place (BIC, two more parameters):
+    # on flat zones they would only add scatter to the step's width and plateaus
+    start = [a0, b0, boundary_um, max(spacing * 0.3, 0.1), 0.0, 0.0]
+    g_max = 1.0 / max(spacing, 1e-3)
+    flat_sides = ([-1, -1, xs[0], 0.0, -1e-12, -1e-12], [2, 2, xs[-1], half, 1e-12, 1e-12])
+    sol = least_squares(resid, start, bounds=flat_sides)
+    sloped = least_squares(resid, sol.x, bounds=([-1, -1, xs[0], 0.0, -g_max, -g_max],
+                                                  [2, 2, xs[-1], half, g_max, g_max]))
+    rss_flat, rss_sloped = float(np.sum(sol.fun**2)), float(np.sum(sloped.fun**2))
+    w_flat = float(sol.x[3])  # the spot estimate (no beam given) keeps the flat-sided width
+    if (rss_flat - rss_sloped) / noise**2 > 2.0 * math.log(xs.size):
+        sol = sloped
+    lo, hi, x0, w_app, g_lo, g_hi = sol.x
     # variances add: s² = w² − σ_spot²; the noise inflates the fitted w² by its variance
     # (E[ŵ²] = w² + se_w²), which would make a sharp step look like a 0.5–1 µm growth step
     w_se = _param_se(sol, noise, 3)
@@ -79,7 +95,7 @@ def _frozen_an(grid, an_x, an_values, an_beam_um, boundary_um, window_um):
         measured = _interp_split(grid.centres_um, xa, smooth, x0)
     # the step model replaces the measured An from the step out to where the measured An
     # departs from the (spot-blurred) step model: two successive points off by > 3 noise
-    blurred = lo + (hi - lo) * ndtr((xa - x0) / max(w_app, 1e-9))
+    blurred = model([lo, hi, x0, max(w_app, 1e-9), g_lo, g_hi], xa)
     off = np.abs(an - blurred) > 3.0 * noise
     r_lo, r_hi = x0 - half, x0 + half
     left = np.flatnonzero(xa < x0)[::-1]
@@ -119,17 +135,21 @@ def _frozen_an(grid, an_x, an_values, an_beam_um, boundary_um, window_um):
         # step of ~1 µm changes the time by 10–25 %); cell averages of the erf, exact
         # for a step much narrower than a cell
         if s <= 1e-6:
-            step = lo + (hi - lo) * grid.fraction_beyond([pos])[0]
+            frac = grid.fraction_beyond([pos])[0]
         else:
             z = (faces - pos) / s
             prim = z * ndtr(z) + np.exp(-0.5 * z**2) / math.sqrt(2.0 * math.pi)  # ∫ Φ dz
-            step = lo + (hi - lo) * np.diff(prim) / np.diff(z)
+            frac = np.diff(prim) / np.diff(z)
+        dx = grid.centres_um - pos
+        step = (1.0 - frac) * (lo + g_lo * dx) + frac * (hi + g_hi * dx)
         out = measured.copy()
         out[region] = step[region]
         return np.clip(out, 0.0, 1.0)
 
     info = {"sharpened": True, "position_um": float(x0), "outer_an": 100 * float(lo),
-            "inner_an": 100 * float(hi), "apparent_width_sd_um": float(w_app), "width_sd_um": float(s),
+            "inner_an": 100 * float(hi), "outer_slope_per_um": 100 * float(g_lo),
+            "inner_slope_per_um": 100 * float(g_hi), "apparent_width_sd_um": float(w_flat),
+            "apparent_width_sloped_sd_um": float(w_app), "width_sd_um": float(s),
             "an_beam_um": an_beam_um, "gap_um": [float(g) for g in gap], "bracket_um": bracket,
             "position_se_um": float(x0_se) if math.isfinite(x0_se) else None,
             "an_noise_sd": 100 * noise}

@@ -185,3 +185,28 @@ def test_hostile_text_is_escaped_and_a_failing_fit_is_reported(tmp_path):
              for row in csv.reader(p.read_text().splitlines()) for cell in row]
     assert FORMULA not in cells and "'" + FORMULA in cells
     assert not [c for c in cells if c.startswith(("=", "+", "@"))]  # OWASP CSV-injection rule (common practice)
+
+
+def test_relative_output_folder(tmp_path):
+    # the README's commands name the output folder relative to where they are run
+    from conftest import run_cli
+    from zoneprofile.demo import make_demo
+
+    make_demo(tmp_path / "src", only=("p04",))
+    (tmp_path / "src" / "one.toml").write_text(textwrap.dedent("""\
+        draws = 200
+        [defaults]
+        temperature_c = 1000
+        temperature_sd_c = 15
+        beam_um = 3
+        [samples.A]
+        [[crystals]]
+        sample = "A"
+        id = "p04"
+        traverse = "microprobe/EF-A_p04.csv"
+        """))
+    code, _, err = run_cli("run", "src/one.toml", "--out", "out", "--quiet", cwd=tmp_path)
+    assert code == 0, err
+    assert (tmp_path / "out" / "report.html").is_file()
+    assert sorted(p.name for p in (tmp_path / "out" / "figures").glob("crystal-*.png")) == ["crystal-001-A-p04.png"]
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".out")]  # no temporary folder left behind

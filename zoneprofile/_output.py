@@ -181,7 +181,7 @@ class atomic_folder:
             raise InputError(message, path=self.path)
         parent = self.path.parent if str(self.path.parent) else Path(".")
         parent.mkdir(parents=True, exist_ok=True)
-        self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.path.name}.", dir=parent))
+        self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.path.name}.", dir=parent)).absolute()
         os.chmod(self.tmp, 0o777 & ~_umask())
         return self.tmp
 

@@ -322,7 +322,7 @@ def write_campaign_outputs(summary: RunSummary, folder, *, formats=None) -> None
     """
     from zoneprofile.report import crystal_figure_name, write_outputs
 
-    folder = Path(folder)
+    folder = Path(folder).absolute()  # figure paths below are handed on as absolute paths
     fmts = summary.formats if formats is None else _figure_formats(formats)
     records = [dict(r) for r in summary.records]
     for r in records:

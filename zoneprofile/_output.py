@@ -85,11 +85,20 @@ def to_jsonable(obj):
 
     NaN and infinities become ``None`` (JSON ``null``) so the file stays valid JSON.
     """
+    kind = type(obj)
+    if kind is float:
+        return obj if math.isfinite(obj) else None
+    if kind is str or kind is int or kind is bool or obj is None:
+        return obj
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
+        if len(obj) > 8 and set(map(type, obj)) == {float}:  # the common long case: curves and draws
+            return list(obj) if all(map(math.isfinite, obj)) else [v if math.isfinite(v) else None for v in obj]
         return [to_jsonable(v) for v in obj]
     if isinstance(obj, np.ndarray):
+        if obj.dtype.kind == "f" and obj.ndim == 1:
+            return to_jsonable(obj.astype(float).tolist())
         return [to_jsonable(v) for v in obj.tolist()]
     if isinstance(obj, (np.bool_, bool)):
         return bool(obj)

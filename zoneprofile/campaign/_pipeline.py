@@ -24,6 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
+from zoneprofile._output import to_jsonable
 from zoneprofile._validation import InputError
 from zoneprofile.campaign._boundaries import (
     match_position,
@@ -273,7 +274,8 @@ def process_crystal(task: dict) -> dict:
             raise
         except Exception as exc:  # noqa: BLE001 - the report draws it again if this fails
             record["warnings"].append(f"crystal figure not drawn with the crystal: {_one_line(exc)}")
-    return record
+    # plain JSON types here, in the worker: the main process only stores and assembles
+    return to_jsonable(record)
 
 
 def _base_record(task):

@@ -10,6 +10,7 @@ written in the name (``(wt%)``, ``_um``, ``[mm]``) are kept in ``unit``.
 
 from __future__ import annotations
 
+import functools
 import re
 from dataclasses import dataclass
 
@@ -227,8 +228,22 @@ def header_score(cells) -> int:
     n = 0
     for c in cells:
         c = str(c).strip()
-        if not c or len(c) > 40:
+        if not c or len(c) > 40 or _looks_numeric(c):
             continue
-        if classify(c).kind == "oxide":
+        if _classify_cached(c).kind == "oxide":
             n += 1
     return n
+
+
+def _looks_numeric(cell: str) -> bool:
+    """A number (decimal point or comma): never a column name, and the bulk of a table's cells."""
+    try:
+        float(cell.replace(",", "."))
+    except ValueError:
+        return False
+    return True
+
+
+@functools.lru_cache(maxsize=4096)
+def _classify_cached(cell: str) -> Column:
+    return classify(cell)

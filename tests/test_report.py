@@ -265,3 +265,149 @@ def test_two_elements_get_their_own_chronology(tmp_path):
     assert {"chronology-Mg.png", "chronology-Sr.png", "events-Mg.png", "events-Sr.png"} <= set(names)
     page = (tmp_path / "report.html").read_text()
     assert "Sr-1" in page and "Mg-1" in page
+
+
+# --------------------------------------------------------------------------- crystal figure canvas
+def _svg_texts(svg_bytes):
+    import xml.etree.ElementTree as ET
+
+    root = ET.fromstring(svg_bytes)  # well-formed XML (user text escaped)
+    ns = "{http://www.w3.org/2000/svg}"
+    return root, [t.text for t in root.iter(f"{ns}text")]
+
+
+def test_nice_ticks_and_labels():
+    from zoneprofile.report._canvas import nice_ticks, tick_labels
+
+    assert nice_ticks(0.0, 100.0, 6).tolist() == [0, 20, 40, 60, 80, 100]
+    assert nice_ticks(52.3, 77.8, 6).tolist() == [55, 60, 65, 70, 75]
+    rng = np.random.default_rng(0)
+    for _ in range(200):  # invariants: inside the range, at most max_n, a 1/2/2.5/5 x 10^k step
+        lo = rng.uniform(-1e4, 1e4)
+        hi = lo + 10 ** rng.uniform(-3, 5)
+        n = int(rng.integers(3, 9))
+        t = nice_ticks(lo, hi, n)
+        assert 2 <= t.size <= n and t[0] >= lo - 1e-9 * abs(hi - lo) and t[-1] <= hi + 1e-9 * abs(hi - lo)
+        step = t[1] - t[0]
+        mantissa = step / 10 ** np.floor(np.log10(step))
+        assert min(abs(mantissa - m) for m in (1, 2, 2.5, 5, 10)) < 1e-6
+        labels = tick_labels(t)
+        assert len(set(labels)) == len(labels)  # neighbours tell apart
+    assert tick_labels([0.0, 0.25, 0.5]) == ["0.00", "0.25", "0.50"]
+    assert tick_labels([-10.0, -0.0, 10.0]) == ["\u221210", "0", "10"]  # a true minus sign; no "-0"
+
+
+def test_dashes_cover_the_pattern_fraction():
+    from zoneprofile.report._canvas import _dash
+
+    # a straight 100 px line, 3 on / 2 off: 20 dashes of 3 px = 60 px of ink (arithmetic)
+    pieces = _dash(np.array([0.0, 100.0]), np.array([5.0, 5.0]), [3.0, 2.0])
+    assert len(pieces) == 20
+    assert sum(float(np.hypot(*np.diff(p, axis=0).T).sum()) for p in pieces) == pytest.approx(60.0)
+    # a bent line keeps its vertices inside the dashes and its length of ink
+    x = np.array([0.0, 30.0, 30.0])
+    y = np.array([0.0, 0.0, 40.0])
+    pieces = _dash(x, y, [4.0, 1.0])
+    assert sum(float(np.hypot(*np.diff(p, axis=0).T).sum()) for p in pieces) == pytest.approx(56.0)
+
+
+def test_canvas_png_matches_its_geometry():
+    from PIL import Image
+
+    from zoneprofile.report._canvas import Canvas, text_width
+
+    c = Canvas(120, 80)
+    c.rect(10, 20, 50, 60, fill="#0072B2")
+    c.line([60, 110], [40, 40], "#D55E00", 3.0)
+    c.text(60, 10, "Ab 12", 9, va="top")
+    img = np.asarray(Image.open(__import__("io").BytesIO(c.png())).convert("RGB")).astype(int)
+    assert img.shape == (80, 120, 3)
+    assert (abs(img[40, 30] - [0, 114, 178]) <= 3).all()  # inside the rectangle
+    assert (img[5, 5] == 255).all() and (img[70, 30] == 255).all()  # outside stays white
+    assert (abs(img[40, 85] - [213, 94, 0]) <= 20).all()  # on the line
+    assert (img[46, 85] == 255).all()  # 3 pt = 4.6 px wide: 6 px away is white
+    ink = np.argwhere(img[:19].sum(axis=2) < 600)  # the text, dark pixels (above the rectangle)
+    assert ink.size and ink[:, 1].min() >= 59 and ink[:, 1].max() <= 60 + text_width("Ab 12", 9) + 1
+    assert ink[:, 0].min() >= 9
+
+
+@pytest.fixture(scope="module")
+def mapped_record():
+    rec = sample_records(seed=7, samples=("S",), crystals_per_sample=1, with_failure=False, n_draws=50)[0]
+    assert rec["map"] and len([b for b in rec["boundaries"] if b.get("curve")]) == 2
+    return rec
+
+
+def test_crystal_figure_shows_every_part_with_units(mapped_record):
+    from PIL import Image
+
+    from zoneprofile.report.figures import crystal_figure_bytes
+
+    drawn = crystal_figure_bytes(mapped_record, ("png", "svg"))
+    root, texts = _svg_texts(drawn["svg"])
+    joined = "\n".join(texts)
+    for label in ("distance from rim (µm)", "An (mol%)", "Mg (ppm)", "x (µm)", "y (µm)", "Profile and zoning (An)",
+                  "95% model band", "initial step", "data", "best fit", "traverse (rim → core)", "Map"):
+        assert label in texts, label
+    assert joined.count("Mg (ppm)") >= 2 and joined.count(" at ") >= 2  # one panel per fit
+    ns = "{http://www.w3.org/2000/svg}"
+    assert len(list(root.iter(f"{ns}image"))) == 2  # the map and its colour bar
+    bands = [p for p in root.iter(f"{ns}path") if p.get("fill-opacity") == "0.35"]
+    assert len(bands) >= 2  # a 95% band per fit (plus its legend swatch is a rect)
+    zones = [r for r in root.iter(f"{ns}rect") if r.get("fill") in ("#E8F1F8", "#FBF0DC", "#E3F4EE", "#F6E6EF")]
+    assert len(zones) == len(mapped_record["zones"]["zones"])
+    png = Image.open(__import__("io").BytesIO(drawn["png"]))
+    assert png.size == (int(root.get("width")[:-2]), int(root.get("height")[:-2]))
+    rgb = np.asarray(png.convert("RGB")).reshape(-1, 3).astype(int)
+    for colour in ((213, 94, 0), (0, 114, 178)):  # Okabe & Ito vermilion (fits) and blue (profile)
+        assert (abs(rgb - colour).max(axis=1) <= 10).sum() > 50
+    assert crystal_figure_bytes(mapped_record, ("png", "svg")) == drawn  # same inputs, same files
+
+
+def test_crystal_figure_text_is_escaped_and_literal(tmp_path, mapped_record):
+    from zoneprofile.report.figures import crystal_figure_bytes
+
+    rec = dict(mapped_record, sample='<b x="1">S & $x$</b>', crystal="c]]>1")
+    prof = dict(rec["profile"])
+    prof["$An"] = prof.pop("An")
+    rec["profile"] = prof
+    rec["zones"] = dict(rec["zones"], column="$An")
+    _, texts = _svg_texts(crystal_figure_bytes(rec, ("svg",))["svg"])
+    assert '<b x="1">S & $x$</b> / c]]>1 (plagioclase)' in texts
+    assert "$An" in texts and "Profile and zoning ($An)" in texts  # drawn as given, no escape characters
+    (pdf,) = render_crystal_figure(rec, tmp_path / "f.png", formats=("pdf",))
+    assert pdf.read_bytes()[:5] == b"%PDF-"  # PDF header (ISO 32000); '$' does not start mathtext
+
+
+def test_worker_figures_with_a_strided_map(mapped_record):
+    from zoneprofile.campaign._pictures import render_figures
+
+    rec = dict(mapped_record, parameters={"pixel_um": 1.0})
+    image = np.asarray(rec["map"]["image"], dtype=float)
+    m = {k: v for k, v in rec["map"].items() if k != "image"}
+    rec["map"] = dict(m, image_png_base64="not drawn")
+    out = render_figures(rec, ("png", "svg"), map_image=(image[::2, ::2], 2))
+    assert set(out) == {"png", "svg"}
+    assert base64.b64decode(out["png"])[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG spec)
+    root, texts = _svg_texts(base64.b64decode(out["svg"]))
+    assert "x (µm)" in texts and "traverse (rim → core)" in texts
+    assert "not drawn" not in base64.b64decode(out["svg"]).decode()
+    assert rec["map"]["image_png_base64"] == "not drawn"  # the record itself is not changed
+
+
+def test_map_picture():
+    from PIL import Image
+
+    from zoneprofile.campaign._pictures import render_map
+
+    yy, xx = np.mgrid[0:60, 0:90]
+    image = 40.0 + 0.3 * xx
+    image[:5] = np.nan  # outside the crystal
+    png = render_map(image, [10.0, 30.0, 80.0, 30.0], 2.0, "An (calibrated)")
+    img = np.asarray(Image.open(__import__("io").BytesIO(png)).convert("RGB")).reshape(-1, 3).astype(int)
+    # both ends of cividis appear (Nuñez et al. 2018; matplotlib's table as the reference)
+    import matplotlib
+
+    for end in (0.0, 1.0):
+        colour = np.round(np.asarray(matplotlib.colormaps["cividis"](end)[:3]) * 255)
+        assert (abs(img - colour).max(axis=1) <= 12).sum() > 20

@@ -7,9 +7,6 @@ travel back as bytes with its record, to be cached beside it.
 from __future__ import annotations
 
 import base64
-import shutil
-import tempfile
-from pathlib import Path
 
 import numpy as np
 
@@ -38,28 +35,30 @@ def calibrated_image(info, max_side=700):
 
 
 def render_map(image, line, pixel_um, label) -> bytes:
-    """PNG bytes of the (calibrated) map with the traverse line."""
-    import io
-
-    from matplotlib.figure import Figure
+    """PNG bytes of the (calibrated) map with the traverse line (dot = rim end), a colour bar and units."""
+    from zoneprofile.report._canvas import Axes, Canvas, colour_bar, colour_bar_width, colour_image
 
     data = np.asarray(image, dtype=float)
-    fig = Figure(figsize=(4.2, 3.6), dpi=110)
-    ax = fig.add_subplot(1, 1, 1)
-    im = ax.imshow(data, cmap="cividis", origin="upper", interpolation="nearest")
+    rgba, lo, hi = colour_image(data, "cividis")
+    rows, cols = data.shape[:2]
+    xlim, ylim = (-0.5, cols - 0.5), (-0.5, rows - 0.5)
+    height = 260.0
+    k = min(300.0 / (cols or 1), height / (rows or 1))
+    bw, bh = k * cols, k * rows
+    left = 12 + Axes.left_margin(ylim, bh)
+    top = 34.0
+    canvas = Canvas(left + bw + 14 + 11 + colour_bar_width(lo, hi, bh) + 10, top + bh + 52)
+    ax = Axes(canvas, (left, top, left + bw, top + bh), xlim, ylim, inverted=True)
+    canvas.image(rgba, left, top, left + bw, top + bh)
     x0, y0, x1, y1 = line
-    ax.plot([x0, x1], [y0, y1], color="white", lw=1.4)
-    ax.plot([x0], [y0], marker="o", color="white", ms=4)
-    ax.set_xlabel("column (pixel)")
-    ax.set_ylabel("row (pixel)")
-    if pixel_um:
-        ax.set_title(f"{label}  (pixel {pixel_um:g} µm; dot = rim)", fontsize=8)
-    cb = fig.colorbar(im, ax=ax, shrink=0.85)
-    cb.set_label(label)
-    fig.tight_layout()
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    return buf.getvalue()
+    # white with a dark rim, so the line reads on bright and dark parts of the map
+    for colour, width, size in (("#000000", 2.6, 6.5), ("#FFFFFF", 1.4, 5.0)):
+        canvas.line(ax.x([x0, x1]), ax.y([y0, y1]), colour, width)
+        canvas.markers(ax.x([x0]), ax.y([y0]), "o", size, colour)
+    title = f"{label}  (pixel {pixel_um:g} µm; dot = rim)" if pixel_um else f"{label}  (dot = rim)"
+    ax.frame(xlabel="column (pixel)", ylabel="row (pixel)", title=title)
+    colour_bar(canvas, (left + bw + 14, top, left + bw + 25, top + bh), lo, hi, "cividis", label=label)
+    return canvas.png()
 
 
 def render_figures(record: dict, formats, *, map_image=None) -> dict:
@@ -68,27 +67,23 @@ def render_figures(record: dict, formats, *, map_image=None) -> dict:
     Figures are drawn with the crystal, in parallel, and cached with its
     record, so a rerun does not draw unchanged crystals again. ``map_image``
     is ``(calibrated array, stride)``: the map panel shows it, the record
-    does not keep it.
+    does not keep it. Only the parts of the record that the figure shows are
+    passed on (no copy of the whole record).
     """
-    from zoneprofile._output import to_jsonable
-    from zoneprofile.report import render_crystal_figure
+    from zoneprofile.report.figures import crystal_figure_bytes
 
-    rec = to_jsonable({k: v for k, v in record.items() if k != "_figures"})
-    folder = Path(tempfile.mkdtemp(prefix="zoneprofile-figure-"))
-    try:
-        m = rec.get("map")
-        if isinstance(m, dict):
-            m = {k: v for k, v in m.items() if k != "image_png_base64"}
-            if map_image is not None:
-                image, stride = map_image
-                m["image"] = image
-                m["line"] = [v / stride for v in m["line"]]
-                pixel = record["parameters"].get("pixel_um")
-                m["pixel_um"] = pixel * stride if pixel else None
-                if not pixel:
-                    m["boundaries"] = []
-            rec["map"] = m
-        paths = render_crystal_figure(rec, folder / "crystal.png", formats=tuple(formats), map_dir=folder)
-        return {Path(p).suffix.lstrip("."): base64.b64encode(Path(p).read_bytes()).decode("ascii") for p in paths}
-    finally:
-        shutil.rmtree(folder, ignore_errors=True)
+    rec = {k: record.get(k) for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries")}
+    m = record.get("map")
+    if isinstance(m, dict):
+        m = {k: v for k, v in m.items() if k != "image_png_base64"}
+        if map_image is not None:
+            image, stride = map_image
+            m["image"] = image
+            m["line"] = [v / stride for v in m["line"]]
+            pixel = (record.get("parameters") or {}).get("pixel_um")
+            m["pixel_um"] = pixel * stride if pixel else None
+            if not pixel:
+                m["boundaries"] = []
+        rec["map"] = m
+    drawn = crystal_figure_bytes(rec, tuple(formats))
+    return {fmt: base64.b64encode(data).decode("ascii") for fmt, data in drawn.items()}

@@ -160,6 +160,20 @@ def test_map_from_png_file(tmp_path):
     assert "<image" not in text and "map image not found" in text
 
 
+def test_finished_map_picture_is_not_read_as_a_map(tmp_path):
+    """A map picture with its own axes (figures/maps/) is named, never redrawn as raw pixels."""
+    from PIL import Image
+
+    rec = sample_records(seed=1, samples=("S",), crystals_per_sample=1, with_failure=False)[0]
+    rec["map"].pop("image")
+    (tmp_path / "figures" / "maps").mkdir(parents=True)
+    Image.new("RGB", (40, 30), (200, 10, 10)).save(tmp_path / "figures" / "maps" / "p.png")
+    rec["map"]["picture_png"] = "figures/maps/p.png"
+    (svg,) = render_crystal_figure(rec, tmp_path / "f.svg", formats=("svg",), map_dir=tmp_path)
+    text = svg.read_text()
+    assert "<image" not in text and "map picture: figures/maps/p.png" in text
+
+
 def test_bad_arguments(tmp_path):
     recs = sample_records(seed=2, crystals_per_sample=1, with_failure=False, with_map=False)
     pop = population_summary(recs, n_bootstrap=0)

@@ -284,7 +284,7 @@ def _fit_panel(canvas, b, cell):
 def _load_map(m, map_dir):
     if m.get("image") is not None:
         return np.asarray(m["image"], dtype=float)
-    rel = m.get("image_png") or m.get("picture_png")
+    rel = m.get("image_png")  # not ``picture_png``: that is a finished picture with its own axes
     if rel and map_dir is not None:
         p = Path(map_dir) / rel
         if p.is_file():
@@ -304,8 +304,8 @@ def _map_panel(canvas, record, cell, map_dir):
     if img is not None and img.ndim == 3 and img.shape[2] == 1:
         img = img[..., 0]
     if img is None or img.ndim not in (2, 3) or img.size == 0 or (img.ndim == 3 and img.shape[2] < 3):
-        canvas.text((left + right) / 2, box_top + _AXES_H / 2, "map image not found", 8, ha="center",
-                    va="center")
+        note = f"map picture: {m['picture_png']}" if m.get("picture_png") else "map image not found"
+        canvas.text((left + right) / 2, box_top + _AXES_H / 2, note, 8, ha="center", va="center")
         return box_top + _AXES_H + _BELOW
     px_um = m.get("pixel_um")
     scale = float(px_um) if px_um else 1.0

@@ -237,3 +237,66 @@ def test_nonlinear_against_scipy_method_of_lines():
     # and the profile is asymmetric (faster diffusion on the Fe-rich side), unlike an erf
     mid = 83.0
     assert abs(np.interp(mid, ours[::-1], xc[::-1]) - 50.0) > 0.3
+
+
+# --------------------------------------------------------------------------- rational evaluation of e^{-τK}
+def test_rational_approximation_of_exp_is_uniform_to_1e13():
+    # Trefethen, Weideman & Schmelzer (2006, BIT 46:653) give the CF approximation of e^t on
+    # (-inf, 0] with error ~ 9.28903^-n (Cody, Meinardus & Varga 1969 rate): 9.28903^-14 = 2.8e-14.
+    # Checked here against numpy's exp over 26 decades of x = -t.
+    from zoneprofile.diffusion.solver import rational_exp_coefficients
+
+    a0, poles, weights = rational_exp_coefficients()
+    assert poles.size == 7 and np.all(poles.imag > 0)
+    x = np.concatenate([[0.0], np.geomspace(1e-12, 1e14, 50001)])
+    r = a0 + np.sum((weights[None, :] / (x[:, None] + poles[None, :])).real, axis=1)
+    err = np.max(np.abs(r - np.exp(-x)))
+    assert err < 1e-13
+    assert err > 1e-16  # a rational function of degree 14 cannot be exact: the check can fail
+
+
+@pytest.mark.parametrize("closed", [True, False])
+def test_rational_evolution_equals_spectral(closed):
+    # self-consistency of the two exact-in-time paths: rational (seven tridiagonal solves)
+    # and spectral (eigendecomposition) on the An-coupled operator, from a sharp step
+    g, x_an, op = _an_problem(closed=closed)
+    c0 = g.cell_average(([50.0], [30.0, 90.0]))
+    taus = np.array([1e-4, 0.3, 12.0, 400.0, 1e5])
+    spectral = op.evolve(c0, taus, rim_value=None if closed else 40.0)
+    fresh = LinearDiffusion(g, op.d_rel, weight=op.weight, rim=op.rim)
+    rational = fresh.evolve(c0, taus, rim_value=None if closed else 40.0, method="rational")
+    assert not fresh.decomposed  # no eigendecomposition was needed
+    assert np.max(np.abs(rational - spectral)) <= 1e-10 * np.max(np.abs(c0))
+    # and the rational path conserves mass in a closed system too (same bound as the spectral check)
+    if closed:
+        assert np.max(np.abs(fresh.mass(rational) - fresh.mass(c0)[None]) / fresh.mass(c0)) <= 1e-9
+
+
+def test_rational_generator_derivative():
+    # d/dτ e^{-τK} v = -K e^{-τK} v: the analytic derivative against a central difference
+    # (step 1e-3: truncation ~1e-10, round-off of the 1e-13 approximation / step ~1e-10)
+    # and against the eigendecomposition, -Q Λ e^{-Λτ} Qᵀ v
+    g, x_an, op = _an_problem(closed=False)
+    rng = np.random.default_rng(3)
+    v = rng.random(g.n)
+    tau, h = 5.0, 1e-3
+    num = (op.decay_rational(v, tau + h) - op.decay_rational(v, tau - h)) / (2 * h)
+    ana = -op.apply_k(op.decay_rational(v, tau))
+    scale = np.max(np.abs(ana))
+    assert np.max(np.abs(num - ana)) < 1e-6 * scale
+    lam, q = op.eigenvalues, op._q
+    spectral = -(q @ (lam * np.exp(-lam * tau) * (q.T @ v)))
+    assert np.max(np.abs(spectral - ana)) < 1e-8 * scale
+
+
+def test_rational_evolution_matches_crank_erf():
+    # Crank (1975) eq. 2.14 through the rational path (same tolerance as the spectral check above)
+    g = uniform_grid(200.0, 400)
+    c0 = np.where(g.centres_um < 100.0, 2.0, 6.0)
+    op = LinearDiffusion(g, 1.0)
+    for tau in (1.0, 10.0, 100.0):
+        c = op.evolve(c0, tau, method="rational")
+        ref = 4.0 + 2.0 * erf((g.centres_um - 100.0) / (2 * math.sqrt(tau)))
+        assert np.max(np.abs(c - ref)) < 0.02 / tau
+    with pytest.raises(Exception, match="method"):
+        op.evolve(c0, 1.0, method="implicit")

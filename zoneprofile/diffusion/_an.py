@@ -209,7 +209,7 @@ def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd
     the step and its standard error; it multiplies the likelihood (the An
     points see the step too).
     """
-    from zoneprofile.diffusion.fitting import _coarse_start, _least_squares
+    from zoneprofile.diffusion.fitting import _coarse_start, _least_squares, _projected_fit
 
     lo, hi = gap
     if hi - lo <= 1e-9:
@@ -218,14 +218,31 @@ def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd
     rows = []
 
     def cost_at(c):
+        # the model at each trial position is asked for a handful of times: no
+        # eigendecomposition ('rational' evaluator). The first position starts from
+        # the coarse search; the others from the positions already fitted
+        # (log10 D·t changes by a few hundredths across the gap, smoothly)
         problem.x_an_cells = cells_at(c)
-        model = problem.model(t0)
-        start = _coarse_start(model, y, weights, log_bounds, (c, c), c, True)
+        model = problem.model(t0, evaluator="rational")
+        if len(rows) >= 2:
+            # log10 D·t and the values from the two nearest positions, linearly
+            (p1, _, l1, v1), (p2, _, l2, v2) = sorted(rows, key=lambda r: abs(r[0] - c))[:2]
+            f = (c - p1) / (p2 - p1) if p2 != p1 else 0.0
+            start = [l1 + f * (l2 - l1), c, *(np.array(v1) + f * (np.array(v2) - np.array(v1)))]
+        elif rows:
+            start = [rows[0][2], c, *rows[0][3]]
+        else:
+            start = _coarse_start(model, y, weights, log_bounds, (c, c), c, True)
         lower = np.array([log_bounds[0], c - 1e-9, 0.0, 0.0])
         upper = np.array([log_bounds[1], c + 1e-9, *(10.0 * np.abs(start[2:]) + 1.0)])
-        theta, sol = _least_squares(model, y, weights, np.array(start, float), lower, upper, max_nfev=100)
-        rows.append([float(c), float(sol.cost), float(theta[0])])
-        return float(sol.cost)
+        thetas, costs = _projected_fit(model, y, weights, start, lower, upper, [True, False, True, True])
+        theta, cost = thetas[0], 0.5 * float(costs[0])
+        if np.any(theta[2:] < lower[2:]) or np.any(theta[2:] > upper[2:]):
+            # the best values lie outside their bounds: the bounded fit of all parameters
+            theta, sol = _least_squares(model, y, weights, np.array(start, float), lower, upper, max_nfev=100)
+            cost = float(sol.cost)
+        rows.append([float(c), cost, float(theta[0]), [float(v) for v in theta[2:]]])
+        return cost
 
     for c in candidates:
         cost_at(c)
@@ -256,4 +273,3 @@ def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd
     out = [{"position_um": r[0], "log10_dt_m2": r[2], "weight": float(wt)} for r, wt in zip(rows, like)]
     best = rows[int(np.argmin(chi2))][0]
     return float(best), cells_at(best), out
-

@@ -67,22 +67,51 @@ class Problem:
             return True
         return not bool(getattr(self.law, "temperature_separable", True))
 
-    def model(self, temperature_c):
+    def model(self, temperature_c, evaluator="auto"):
+        """The model at one temperature; ``evaluator`` only for the linear model (see :class:`LinearModel`)."""
         if self.nonlinear:
             return NonlinearModel(self, temperature_c)
-        return LinearModel(self, temperature_c)
+        return LinearModel(self, temperature_c, evaluator=evaluator)
+
+
+_LN10 = float(np.log(10.0))
+#: modes with λτ above this have decayed below e^-50 and are skipped
+_DECAYED = 50.0
 
 
 class LinearModel:
-    """The spectral model at one temperature (one eigendecomposition)."""
+    """The linear (spectral or rational) model at one temperature.
 
-    def __init__(self, problem: Problem, temperature_c: float):
+    Predictions are linear in the values: ``predict(θ) = Σ_k v_k·A_k(log10 D·t,
+    boundary)`` with ``A_k`` the prediction for a unit value ``k`` (the held rim
+    value of an open rim is linear in the values too). Two evaluators of the
+    same operator (:class:`~zoneprofile.diffusion.solver.LinearDiffusion`):
+
+    - ``'spectral'``: one eigendecomposition, then every evaluation is two small
+      matrix products (the spectral coefficients of each unit initial profile
+      are kept for the last boundary position asked for);
+    - ``'rational'``: no decomposition; seven complex tridiagonal solves per
+      time (the right choice for a model asked for a handful of times: a refit
+      at another temperature or at a trial boundary position);
+    - ``'auto'`` (default): rational until the evaluations asked for would cost
+      more than one decomposition, spectral from then on.
+
+    Both are exact in time (they agree to ~1e-12); derivatives with respect to
+    log10 D·t are analytic (``d e^{-τK}/dτ = −K e^{-τK}``), with respect to the
+    boundary exact for the cell-averaged step (piecewise linear in the position).
+    """
+
+    #: rational evaluations (one time each) worth about one eigendecomposition
+    AUTO_LIMIT = 48
+
+    def __init__(self, problem: Problem, temperature_c: float, evaluator: str = "auto"):
+        if evaluator not in ("auto", "spectral", "rational"):
+            raise ValueError(f"evaluator must be 'auto', 'spectral' or 'rational', got {evaluator!r}")
         p = problem
         self.problem = p
         grid = p.grid
         t_k = float(temperature_c) + 273.15
         d_ref = float(p.d_ref(temperature_c))
-        comp = p.law_composition()
         if p.x_an_cells is not None and ("x_an" in getattr(p.law, "needs", ()) or p.coupling == "an"):
             d = p.law.d_m2_s(temperature_c, **p.law_composition(x_an=p.x_an_cells))
         else:
@@ -100,35 +129,141 @@ class LinearModel:
         self.temperature_c = float(temperature_c)
         self.d_ref_m2_s = d_ref
         self.operator = LinearDiffusion(grid, d_rel, weight=w, rim=p.rim, core="closed")
-        self._sample = self.operator.sampler(p.data_matrix)
+        self._B = p.data_matrix
         self._rim_basis = self.initial.rim_basis(grid)
+        n_values = self._rim_basis.size
+        # steady state of each unit value: an open rim holds its value, which then fills the crystal
+        css = np.zeros((n_values, grid.n))
+        if p.rim == "open":
+            for k in range(n_values):
+                state = self.operator.steady_state(float(self._rim_basis[k]))
+                if state is not None:
+                    css[k] = state
+        self._css = css
+        self._css_pred = css @ self._B.T  # (n_values, n_points)
+        self._evaluator = evaluator
+        self._n_rational = 0
+        self._p_out = None
+        self._coef_cache = (None, None)
 
-    def _rim(self, values):
-        return float(np.dot(values, self._rim_basis)) if self.problem.rim == "open" else None
+    # ------------------------------------------------------------------ evaluator choice
+    @property
+    def spectral(self) -> bool:
+        """Whether evaluations go through the eigendecomposition."""
+        return self._p_out is not None
 
-    def predict(self, theta):
-        log10_dt, boundary, *values = theta
-        values = np.asarray(values, float)
-        c0 = values @ self.initial.basis(self.problem.grid, boundary)
-        tau = 10.0 ** (log10_dt) * UM2_PER_M2
-        return self._sample(c0, tau, rim_value=self._rim(values))
+    def expect_evaluations(self, count):
+        """Tell the model ``count`` evaluations (times) are coming; decides the evaluator for 'auto'."""
+        if self._p_out is not None or self._evaluator == "rational":
+            return
+        if self._evaluator == "spectral" or self._n_rational + int(count) > self.AUTO_LIMIT:
+            self._p_out = self._B @ self.operator._out
+        else:
+            self._n_rational += int(count)
+
+    def _dc(self, boundary):
+        """Unit initial profiles minus their steady states, shape (n_values, N)."""
+        return self.initial.basis(self.problem.grid, boundary) - self._css
+
+    def _coef(self, boundary):
+        b = float(boundary)
+        if self._coef_cache[0] != b:
+            self._coef_cache = (b, self._dc(b) @ self.operator._in.T)
+        return self._coef_cache[1]
+
+    def _dbasis(self, boundary):
+        """d(unit initial profiles)/d(boundary): (n_values, N), nonzero in the cut cell only."""
+        return self.initial.basis_derivative(self.problem.grid, boundary)
+
+    # ------------------------------------------------------------------ evaluations
+    def basis_jacobian_batch(self, log10_dts, boundary, *, wrt_boundary=False, derivatives=True):
+        """Predictions for unit values at several log10 D·t (one boundary) and their derivatives.
+
+        Returns ``(A, dA_dlog, dA_dboundary)``, each of shape (n_values, R, n_points)
+        (``dA_dlog`` None unless ``derivatives``; ``dA_dboundary`` None unless
+        ``wrt_boundary``).
+        """
+        logs = np.atleast_1d(np.asarray(log10_dts, float))
+        tau = 10.0 ** logs * UM2_PER_M2
+        self.expect_evaluations(logs.size)
+        if self._p_out is not None:
+            lam = self.operator.eigenvalues
+            tmin = float(np.min(tau))
+            m = lam.size if tmin <= 0 else max(int(np.searchsorted(lam, _DECAYED / tmin)), 1)
+            lam_m = lam[:m]
+            decay = np.exp(-lam_m[:, None] * tau[None, :])  # (m, R)
+            p_out_t = self._p_out[:, :m].T  # (m, n)
+            coef = self._coef(boundary)[:, :m]
+            amp = decay[None, :, :] * coef[:, :, None]  # (k, m, R)
+            a = self._css_pred[:, None, :] + np.transpose(amp, (0, 2, 1)) @ p_out_t  # (k, R, n)
+            da = db = None
+            if derivatives:
+                da = np.transpose(amp * lam_m[None, :, None], (0, 2, 1)) @ p_out_t
+                da *= -(_LN10 * tau)[None, :, None]
+            if wrt_boundary:
+                dbasis = self._dbasis(boundary)
+                cells = np.flatnonzero(np.any(dbasis != 0.0, axis=0))
+                dcoef = dbasis[:, cells] @ self.operator._in[:m, cells].T  # (k, m)
+                db = np.transpose(decay[None, :, :] * dcoef[:, :, None], (0, 2, 1)) @ p_out_t
+            return a, da, db
+        op = self.operator
+        x = (op._to_sym * self._dc(boundary)).T  # (N, k)
+        n_k = x.shape[1]
+        if wrt_boundary:
+            x = np.hstack([x, (op._to_sym * self._dbasis(boundary)).T])
+        bw = self._B * op._from_sym[None, :]
+        a = np.empty((n_k, logs.size, self._B.shape[0]))
+        da = np.empty_like(a) if derivatives else None
+        db = np.empty_like(a) if wrt_boundary else None
+        for r, t in enumerate(tau):
+            v = op.decay_rational(x, t)
+            pred = bw @ v  # (n_points, k [+ k])
+            a[:, r, :] = self._css_pred + pred[:, :n_k].T
+            if derivatives:
+                da[:, r, :] = -(_LN10 * t) * (bw @ op.apply_k(v[:, :n_k])).T
+            if wrt_boundary:
+                db[:, r, :] = pred[:, n_k:].T
+        return a, da, db
+
+    def basis_predictions_batch(self, log10_dts, boundary):
+        """Predictions for unit values at several log10 D·t: shape (n_values, R, n_points)."""
+        return self.basis_jacobian_batch(log10_dts, boundary, derivatives=False)[0]
 
     def basis_predictions(self, log10_dt, boundary):
         """Predictions for unit values, shape (n_values, n_points) (linear in the values)."""
-        basis = self.initial.basis(self.problem.grid, boundary)
-        tau = 10.0 ** (log10_dt) * UM2_PER_M2
-        rows = []
-        for k in range(basis.shape[0]):
-            rim = self._rim_basis[k] if self.problem.rim == "open" else None
-            rows.append(self._sample(basis[k], tau, rim_value=rim))
-        return np.vstack(rows)
+        return self.basis_jacobian_batch([log10_dt], boundary, derivatives=False)[0][:, 0, :]
+
+    def basis_jacobian(self, log10_dt, boundary, *, wrt_boundary=False):
+        """``(A, dA/dlog10 D·t, dA/dboundary or None)``, each (n_values, n_points)."""
+        a, da, db = self.basis_jacobian_batch([log10_dt], boundary, wrt_boundary=wrt_boundary)
+        return a[:, 0, :], da[:, 0, :], None if db is None else db[:, 0, :]
+
+    def predict(self, theta):
+        log10_dt, boundary, *values = theta
+        return np.asarray(values, float) @ self.basis_predictions(log10_dt, boundary)
+
+    def _rim(self, values):
+        return float(np.dot(values, self._rim_basis)) if self.problem.rim == "open" else None
 
     def cells(self, theta):
         log10_dt, boundary, *values = theta
         values = np.asarray(values, float)
         c0 = values @ self.initial.basis(self.problem.grid, boundary)
         tau = 10.0 ** (log10_dt) * UM2_PER_M2
-        return self.operator.evolve(c0, tau, rim_value=self._rim(values)), c0
+        method = "spectral" if self._p_out is not None else "rational"
+        return self.operator.evolve(c0, tau, rim_value=self._rim(values), method=method), c0
+
+    def cells_many(self, thetas):
+        """Cell values for several parameter sets, shape (R, N) (one product for a shared boundary)."""
+        thetas = np.asarray(thetas, float)
+        if self._p_out is None or np.ptp(thetas[:, 1]) > 0:
+            return np.array([self.cells(th)[0] for th in thetas])
+        lam = self.operator.eigenvalues
+        tau = 10.0 ** thetas[:, 0] * UM2_PER_M2
+        coef = self._coef(thetas[0, 1])  # (k, N)
+        values = thetas[:, 2:]  # (R, k)
+        amp = np.exp(-lam[:, None] * tau[None, :]) * (coef.T @ values.T)  # (N, R)
+        return (self.operator._out @ amp).T + values @ self._css
 
 
 class NonlinearModel:

@@ -123,6 +123,28 @@ class Grid:
         p = 2 if self.geometry == "cylinder" else 3
         return (r_cut**p - r_lo**p) / (r_hi**p - r_lo**p)
 
+    def fraction_beyond_derivative(self, position_um) -> np.ndarray:
+        """d/d(position) of :meth:`fraction_beyond` for one position, shape (N,).
+
+        Nonzero only in the cell the position cuts (the fraction is linear in the
+        position there for a planar grid); at a face, the derivative of the cell
+        on the core side is taken (one-sided).
+        """
+        x = float(position_um)
+        f = self.faces_um
+        out = np.zeros(self.n)
+        j = int(np.searchsorted(f, x, side="right")) - 1
+        if j < 0 or j >= self.n:
+            return out
+        lo, hi = f[j], f[j + 1]
+        if self.geometry == "planar":
+            out[j] = -1.0 / (hi - lo)
+            return out
+        p = 2 if self.geometry == "cylinder" else 3
+        r_hi, r_lo, r_cut = self._radius(lo), self._radius(hi), self._radius(x)
+        out[j] = -p * r_cut ** (p - 1) / (r_hi**p - r_lo**p)
+        return out
+
 
 def uniform_grid(length_um, n, *, start_um=0.0, geometry="planar", radius_um=None) -> Grid:
     """``n`` equal cells from ``start_um`` to ``start_um + length_um``."""

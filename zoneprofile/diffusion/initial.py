@@ -15,7 +15,9 @@ the open rim takes its held value from the same values.
     (Bindeman et al. 1998). The fitted values are the two melt concentrations.
 
 To add a type: subclass :class:`InitialCondition`, implement ``basis`` and
-``rim_basis``, give ``value_names``, and register it in ``INITIAL_CONDITIONS``.
+``rim_basis`` (and ``basis_derivative`` when it can be had exactly; the
+default is a central difference), give ``value_names``, and register it in
+``INITIAL_CONDITIONS``.
 """
 
 from __future__ import annotations
@@ -41,6 +43,11 @@ class InitialCondition:
         """The concentration at the rim face per unit of each value, shape (n_values,)."""
         raise NotImplementedError
 
+    def basis_derivative(self, grid: Grid, boundary_um: float) -> np.ndarray:
+        """d(basis)/d(boundary_um), shape (n_values, N) (central difference unless overridden)."""
+        h = 1e-6 * max(float(np.min(grid.widths_um)), 1e-12)
+        return (self.basis(grid, boundary_um + h) - self.basis(grid, boundary_um - h)) / (2.0 * h)
+
     def profile(self, grid: Grid, boundary_um: float, values) -> np.ndarray:
         return np.asarray(values, float) @ self.basis(grid, boundary_um)
 
@@ -59,6 +66,10 @@ class StepInitial(InitialCondition):
     def basis(self, grid, boundary_um):
         beyond = grid.fraction_beyond([boundary_um])[0]
         return np.vstack([1.0 - beyond, beyond])
+
+    def basis_derivative(self, grid, boundary_um):
+        d = grid.fraction_beyond_derivative(boundary_um)
+        return np.vstack([-d, d])
 
     def rim_basis(self, grid):
         return np.array([1.0, 0.0])
@@ -86,6 +97,10 @@ class MeltEquilibriumInitial(InitialCondition):
     def basis(self, grid, boundary_um):
         beyond = grid.fraction_beyond([boundary_um])[0]
         return np.vstack([(1.0 - beyond) * self.partition_k, beyond * self.partition_k])
+
+    def basis_derivative(self, grid, boundary_um):
+        d = grid.fraction_beyond_derivative(boundary_um)
+        return np.vstack([-d * self.partition_k, d * self.partition_k])
 
     def rim_basis(self, grid):
         return np.array([self.rim_k, 0.0])

@@ -166,7 +166,7 @@ def _percentiles(values):
 
 def _noise_offsets(ctx, rng):
     """log10 τ of refits to resampled data (or covariance draws); also the refit parameter sets."""
-    from zoneprofile.diffusion.fitting import _least_squares, _refit_projected
+    from zoneprofile.diffusion.fitting import _least_squares, _projected_fit
 
     problem, model, best = ctx["problem"], ctx["model"], ctx["best"]
     lower, upper, vary = ctx["lower"], ctx["upper"], np.array(ctx["vary"])
@@ -196,12 +196,13 @@ def _noise_offsets(ctx, rng):
     lo_fit = np.where(vary, lower, best - 1e-9)
     hi_fit = np.where(vary, upper, best + 1e-9)
     linear = hasattr(model, "basis_predictions")
-    for _ in range(n_refits):
-        y_star = pred + rng.choice(scaled, size=n, replace=True) / weights
-        if linear:
-            theta = _refit_projected(model, y_star, weights, best, lower, upper, vary)
-        else:
-            theta, _ = _least_squares(model, y_star, weights, best, lo_fit, hi_fit, max_nfev=200)
+    y_stars = [pred + rng.choice(scaled, size=n, replace=True) / weights for _ in range(n_refits)]
+    if linear:
+        # all refits at once (variable projection, vectorised over the resampled sets)
+        thetas, _ = _projected_fit(model, np.array(y_stars), weights, best, lower, upper, vary)
+        return thetas, f"residual bootstrap, {n_refits} refits"
+    for y_star in y_stars:
+        theta, _ = _least_squares(model, y_star, weights, best, lo_fit, hi_fit, max_nfev=200)
         thetas.append(theta)
     return np.array(thetas), f"residual bootstrap, {n_refits} refits"
 
@@ -218,18 +219,27 @@ def _temperature_shape(ctx):
     lo_fit = np.where(vary, lower, best - 1e-9)
     hi_fit = np.where(vary, upper, best + 1e-9)
     offsets = _NODES * sd
-    logs = []
-    for dt in offsets:
+    logs = np.full(offsets.size, np.nan)
+    done_dt, done_log = [0.0], [float(best[0])]
+    for i in np.argsort(np.abs(offsets), kind="stable"):  # nearest temperatures first
+        dt = offsets[i]
         t = t0 + dt
         if t <= 0:
-            logs.append(np.nan)
             continue
-        model = problem.model(t)
+        model = problem.model(t, evaluator="rational")  # one refit from the best fit: no decomposition
         if hasattr(model, "basis_predictions"):
-            theta = _refit_projected(model, problem.y, ctx["weights"], best, lower, upper, vary)
+            # start from log10 D·t extrapolated through the temperatures already fitted (the
+            # values are solved at every step of a projected fit and need no start)
+            start = np.array(best, float)
+            if len(done_dt) > 1:
+                coef = np.polyfit(done_dt, done_log, min(len(done_dt) - 1, 2))
+                start[0] = float(np.clip(np.polyval(coef, dt), lower[0], upper[0]))
+            theta = _refit_projected(model, problem.y, ctx["weights"], start, lower, upper, vary)
         else:
             theta, _ = _least_squares(model, problem.y, ctx["weights"], best, lo_fit, hi_fit, max_nfev=200)
-        logs.append(theta[0])
+        logs[i] = theta[0]
+        done_dt.append(float(dt))
+        done_log.append(float(theta[0]))
     dts = np.concatenate([[0.0], offsets])
     vals = np.concatenate([[best[0]], logs]) - best[0]
     ok = np.isfinite(vals)
@@ -397,7 +407,11 @@ def propagate(ctx) -> FitResult:
     initial = c0[idx]
     if thetas.shape[0] > 1:
         sub = thetas[: min(thetas.shape[0], 60)]
-        curves = np.array([b_curve @ model.cells(th)[0] for th in sub])
+        cells_many = getattr(model, "cells_many", None)
+        if cells_many is not None:
+            curves = cells_many(sub) @ b_curve.T
+        else:
+            curves = np.array([b_curve @ model.cells(th)[0] for th in sub])
         band_low = np.percentile(curves, 2.5, axis=0)
         band_high = np.percentile(curves, 97.5, axis=0)
     else:

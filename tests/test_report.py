@@ -425,3 +425,169 @@ def test_map_picture():
     for end in (0.0, 1.0):
         colour = np.round(np.asarray(matplotlib.colormaps["cividis"](end)[:3]) * 255)
         assert (abs(img - colour).max(axis=1) <= 12).sum() > 20
+
+
+# --------------------------------------------------------------------------- population figures (canvas)
+def test_log_ticks_sit_at_log10_of_their_values():
+    import math
+
+    from zoneprofile.report._canvas import Axes, Canvas, log_tick_labels, log_ticks
+
+    major, minor = log_ticks(1.0, 1000.0, 7)
+    assert major.tolist() == [1, 10, 100, 1000]
+    assert sorted(minor.tolist()) == sorted(m * 10.0**e for e in range(3) for m in range(2, 10))
+    assert log_tick_labels(major) == ["1", "10", "100", "1000"]
+    # a short range gets 1-2-5 labels, a shorter one every multiple, within a factor of 3 round linear values
+    assert log_ticks(8.0, 600.0, 7)[0].tolist() == [10, 20, 50, 100, 200, 500]
+    assert log_ticks(15.0, 45.0, 7)[0].tolist() == [20, 30, 40]
+    assert log_ticks(12.0, 18.0, 7)[0].tolist() == [12, 13, 14, 15, 16, 17, 18]
+    assert log_ticks(1.1, 999.0, 7)[0].tolist() == [3, 10, 30, 100, 300]  # 1-2-5 would be 8 labels
+    assert log_ticks(2.1, 4.2, 7)[0].tolist() == [2.5, 3, 3.5, 4]  # not just "3" and "4"
+    wide, skipped = log_ticks(1e-2, 1e8, 6)  # 11 decades, at most 6 labels: every 2nd decade
+    assert wide.tolist() == [1e-2, 1, 1e2, 1e4, 1e6, 1e8] and skipped.size == 5
+    assert log_tick_labels([1e5, 2e6, 1e-4, 0.001, 0.5]) == ["10\u2075", "2\u00d710\u2076", "10\u207b\u2074", "0.001",
+                                                           "0.5"]
+    # pixel positions: left + width * (log10 v - log10 lo) / (log10 hi - log10 lo) (the definition of a log axis)
+    ax = Axes(Canvas(500, 100), (100, 0, 400, 100), (3.0, 4000.0), (0, 1), xlog=True)
+    for v in (3.0, 7.0, 10.0, 250.0, 4000.0):
+        expected = 100 + 300 * (math.log10(v) - math.log10(3.0)) / (math.log10(4000.0) - math.log10(3.0))
+        assert float(ax.x(v)) == pytest.approx(expected, abs=1e-9)
+    assert np.isnan(ax.x([0.0, -1.0])).all()  # no logarithm: the line breaks there
+    rng = np.random.default_rng(3)
+    for _ in range(300):  # invariants: inside the range, increasing, 2..max_n labels, distinct label texts
+        lo = 10 ** rng.uniform(-4, 6)
+        hi = lo * 10 ** rng.uniform(0.2, 9)
+        n = int(rng.integers(4, 9))
+        major, minor = log_ticks(lo, hi, n)
+        assert 2 <= major.size <= n and np.all(np.diff(major) > 0)
+        assert major[0] >= lo * (1 - 1e-9) and major[-1] <= hi * (1 + 1e-9)
+        assert not set(major.tolist()) & set(minor.tolist())
+        labels = log_tick_labels(major)
+        assert len(set(labels)) == len(labels)
+
+
+HOSTILE_POP = 'N<1> & "vent"'
+
+
+@pytest.fixture(scope="module")
+def pop_figures(tmp_path_factory):
+    from zoneprofile.report import render_population_figures
+
+    out = tmp_path_factory.mktemp("population")
+    recs = sample_records(seed=21, samples=(HOSTILE_POP, "South"), crystals_per_sample=3, n_draws=200)
+    recs[3]["crystal"], recs[4]["crystal"] = "c2", "c10"  # natural order: c2 before c10
+    pop = population_summary(recs, n_bootstrap=20)
+    paths = render_population_figures(pop, out, formats=("png", "svg"))
+    return out, recs, pop, paths
+
+
+def test_population_figures_written(pop_figures):
+    out, _, _, paths = pop_figures
+    assert set(paths) == {"Mg"}
+    assert [p.name for p in paths["Mg"]["chronology"]] == ["chronology-Mg.png", "chronology-Mg.svg"]
+    assert [p.name for p in paths["Mg"]["events"]] == ["events-Mg.png", "events-Mg.svg"]
+    for p in out.iterdir():
+        head = p.read_bytes()[:8]
+        assert head == b"\x89PNG\r\n\x1a\n" if p.suffix == ".png" else head.startswith(b"<?xml")  # PNG spec
+
+
+def test_chronology_figure_shows_every_part_with_units(pop_figures):
+    out, _, pop, _ = pop_figures
+    root, texts = _svg_texts((out / "chronology-Mg.svg").read_bytes())
+    block = pop["elements"]["Mg"]
+    ecdf, kde = block["campaign"]["ecdf"], block["campaign"]["kde"]
+    expected = ["Recharge chronology: Mg", "Empirical CDF of boundary times", "Kernel density of log10 time",
+                "fraction of dated boundaries", "density (per log10 day)", "spread from time draws (95%)",
+                "DKW band (95%)", f"all samples (n = {ecdf['n']})", "upper bound (not in ECDF)",
+                "bootstrap band (95%)", f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)",
+                "boundary medians"]
+    expected += [f"{name} (n = {s['ecdf']['n']})" for name, s in block["samples"].items()]
+    expected += [e["id"] for e in block["events"]]
+    for label in expected:
+        assert label in texts, label
+    assert texts.count("time since boundary formed (days, log scale)") == 2  # both panels, with units
+    assert "10" in texts and "100" in texts  # decade ticks
+    ns = "{http://www.w3.org/2000/svg}"
+    fills = {p.get("fill") for p in root.iter(f"{ns}path")} | {r.get("fill") for r in root.iter(f"{ns}rect")}
+    assert {"#56B4E9", "#E69F00", "#009E73"} <= fills  # DKW band, draw envelope, KDE band (Okabe & Ito 2008)
+    assert {"#D4E9F7", "#F9DCCB"} <= fills  # event spans
+
+
+def _x_of_tick(root, label):
+    ns = "{http://www.w3.org/2000/svg}"
+    for t in root.iter(f"{ns}text"):
+        if t.text == label and t.get("text-anchor") == "middle":
+            return float(t.get("x"))
+    raise AssertionError(label)
+
+
+def test_events_figure_rows_bars_and_spans(pop_figures):
+    import io
+    import math
+
+    from PIL import Image
+
+    out, recs, pop, _ = pop_figures
+    root, texts = _svg_texts((out / "events-Mg.svg").read_bytes())
+    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event", "upper bound",
+                  "time since boundary formed (days, log scale; bars: 95%)"):
+        assert label in texts, label
+    ns = "{http://www.w3.org/2000/svg}"
+    rows = [t for t in root.iter(f"{ns}text") if " / " in (t.text or "") and t.get("text-anchor") == "end"]
+    names = [t.text for t in rows]
+    assert len(names) == len({(r["sample"], r["crystal"]) for r in recs if not r["error"]})
+    assert f"{HOSTILE_POP} / c01" in names
+    y_of = {t.text: float(t.get("y")) for t in rows}
+    assert y_of["South / c2"] < y_of["South / c10"]  # natural order
+    # one bar and two caps per dated boundary, in the colour of its event (and the legend's two caps)
+    events = pop["elements"]["Mg"]["events"]
+    colours = {"Mg-1": "#0072B2", "Mg-2": "#D55E00"}
+    for e in events:
+        counts = sorted(p.get("d").count("M") for p in root.iter(f"{ns}path")
+                        if p.get("stroke") == colours[e["id"]] and "L" in p.get("d"))
+        n = sum(1 for b in pop["boundaries"] if b["event"] == e["id"])
+        assert counts == sorted([2, n, 2 * n]), e["id"]
+    # the first event's span sits at log10 of its 95% limits, on the scale given by the decade ticks
+    x10, x100 = _x_of_tick(root, "10"), _x_of_tick(root, "100")
+    span = next(r for r in root.iter(f"{ns}rect") if r.get("fill") == "#D4E9F7")
+    e = events[0]
+    left = x10 + (math.log10(e["p2_5_days"]) - 1.0) * (x100 - x10)
+    right = x10 + (math.log10(e["p97_5_days"]) - 1.0) * (x100 - x10)
+    sx, sw, sy = float(span.get("x")), float(span.get("width")), float(span.get("y"))
+    assert sx == pytest.approx(left, abs=0.6) and sx + sw == pytest.approx(right, abs=0.6)
+    # ... and the PNG shows it there: light blue inside, not outside
+    img = np.asarray(Image.open(io.BytesIO((out / "events-Mg.png").read_bytes())).convert("RGB")).astype(int)
+    row = round(sy + 4)
+    inside = img[row, round((left + right) / 2)]
+    assert (abs(inside - [0xD4, 0xE9, 0xF7]) <= 3).all()
+    for x in (round(left) - 4, round(right) + 4):
+        assert (abs(img[row, x] - [0xD4, 0xE9, 0xF7]) > 10).any()
+
+
+def test_population_figures_escape_user_text(pop_figures):
+    out, _, _, _ = pop_figures
+    for name in ("chronology-Mg.svg", "events-Mg.svg"):
+        raw = (out / name).read_text()
+        assert "N<1>" not in raw and "N&lt;1&gt; &amp; " in raw  # XML-escaped in the file
+        _, texts = _svg_texts(raw.encode())  # parses, and reads back literally
+        assert any(t and t.startswith(HOSTILE_POP) for t in texts)
+
+
+def test_population_figures_do_not_import_matplotlib(tmp_path):
+    import subprocess
+    import sys
+
+    code = f"""
+import sys
+import zoneprofile.report
+from zoneprofile.chronology import population_summary
+from zoneprofile.report import render_population_figures
+from zoneprofile.report._sample import sample_records
+recs = sample_records(seed=5, crystals_per_sample=2, n_draws=100, with_map=False)
+render_population_figures(population_summary(recs, n_bootstrap=5), {str(tmp_path)!r}, formats=("png", "svg"))
+print("matplotlib" in sys.modules)
+paths = render_population_figures(population_summary(recs, n_bootstrap=5), {str(tmp_path)!r}, formats=("pdf",))
+print("matplotlib" in sys.modules, paths["Mg"]["events"][0].read_bytes()[:5])
+"""
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert res.stdout.split("\n")[:2] == ["False", "True b'%PDF-'"]  # only a PDF brings matplotlib in

@@ -8,6 +8,18 @@ time, the report written serially (figures drawn in the main process), and
 the report written with crystal figures drawn by 2 worker processes
 beforehand (the way a campaign can draw them in its workers), with the ratio.
 
+    python tests/benchmarks/bench_report.py population [N_CRYSTALS] [REPEATS]
+
+The third form times ``render_population_figures`` (chronology and events
+figures, PNG + SVG) for a population of N crystals in two samples, now (the
+canvas) and as drawn with matplotlib before (``figures.py`` of ``git show
+HEAD``, or of ``POPULATION_REFERENCE`` when HEAD already holds the canvas
+version), side by side: warm (same process, minimum of REPEATS) and cold (a
+fresh interpreter each, minimum of 3: the shared imports of numpy and
+``zoneprofile.report`` timed apart from the first call, which includes what
+that call imports, matplotlib before, Pillow now), and checks whether
+matplotlib was imported.
+
 The second form times the crystal figure as a campaign worker draws it
 (``zoneprofile.campaign._pictures.render_figures``, PNG + SVG), now and as it
 was drawn with matplotlib axes before (the code of commit ``REFERENCE``, read
@@ -151,8 +163,103 @@ def figures(calls_path=None, repeats=5) -> None:
               + f" per map ({len(maps)} maps)")
 
 
+POPULATION_REFERENCE = "eb2a93d"  # the last commit that drew the population figures with matplotlib
+
+_COLD = """
+import pickle, sys, time, types
+t0 = time.perf_counter()
+if sys.argv[2] == "now":
+    from zoneprofile.report.figures import render_population_figures
+else:
+    mod = types.ModuleType("reference_figures")
+    exec(compile(open(sys.argv[2]).read(), "reference_figures", "exec"), mod.__dict__)
+    render_population_figures = mod.render_population_figures
+pop = pickle.load(open(sys.argv[1], "rb"))
+t1 = time.perf_counter()
+render_population_figures(pop, sys.argv[3], formats=("png", "svg"))
+t2 = time.perf_counter()
+print(t1 - t0, t2 - t1, int("matplotlib" in sys.modules))
+"""
+
+
+def _reference_population_module():
+    """``figures.py`` with the matplotlib population figures (HEAD, else ``POPULATION_REFERENCE``)."""
+    root = Path(__file__).resolve().parents[2]
+    for rev in ("HEAD", POPULATION_REFERENCE):
+        try:
+            src = subprocess.run(["git", "show", f"{rev}:zoneprofile/report/figures.py"], cwd=root, check=True,
+                                 capture_output=True, text=True).stdout
+        except (OSError, subprocess.CalledProcessError):
+            return None, None
+        if "def _chronology_figure" in src:  # the matplotlib version
+            module = types.ModuleType("reference_figures")
+            exec(compile(src, "reference_figures", "exec"), module.__dict__)
+            return module, src
+    return None, None
+
+
+def population(n_crystals: int = 200, repeats: int = 5) -> None:
+    from zoneprofile.report.figures import render_population_figures
+
+    per_sample = max(1, n_crystals // 2)
+    records = sample_records(seed=1, samples=("North vent", "South flank"), crystals_per_sample=per_sample,
+                             n_draws=1000, with_failure=False)
+    pop = population_summary(records)
+    print(f"population figures: {len(records)} crystals, {len(pop['boundaries'])} dated boundaries, "
+          f"{len(pop['unresolved'])} upper bound(s); PNG + SVG")
+    reference, source = _reference_population_module()
+    kinds = [("canvas (now)", render_population_figures)]
+    if reference is not None:
+        kinds.append(("matplotlib (before)", reference.render_population_figures))
+    best, sizes = {}, {}
+    with tempfile.TemporaryDirectory() as d:
+        for kind, fn in kinds:  # warm up: imports, fonts, glyph caches
+            fn(pop, Path(d) / "warm", formats=("png", "svg"))
+        for _ in range(repeats):
+            for k, (kind, fn) in enumerate(kinds):
+                out = Path(d) / f"k{k}"
+                t0, c0 = time.perf_counter(), time.process_time()
+                fn(pop, out, formats=("png", "svg"))
+                wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+                w, c = best.get(kind, (float("inf"), float("inf")))
+                best[kind] = (min(w, wall), min(c, cpu))
+                sizes[kind] = {f.name: f.stat().st_size for f in out.iterdir()}
+        cold = {}
+        pkl = Path(d) / "pop.pkl"
+        pkl.write_bytes(pickle.dumps(pop))
+        ref_path = Path(d) / "reference_figures.py"
+        if source:
+            ref_path.write_text(source)
+        for _ in range(3):
+            for kind, arg in [("canvas (now)", "now")] + ([("matplotlib (before)", str(ref_path))] if source else []):
+                t0 = time.perf_counter()
+                res = subprocess.run([sys.executable, "-c", _COLD, str(pkl), arg, str(Path(d) / "cold")],
+                                     check=True, capture_output=True, text=True).stdout.split()
+                total = time.perf_counter() - t0
+                imp, draw, mpl = float(res[0]), float(res[1]), bool(int(res[2]))
+                prev = cold.get(kind)
+                if prev is None or imp + draw < prev[0] + prev[1]:
+                    cold[kind] = (imp, draw, mpl, total)
+    for kind, (wall, cpu) in best.items():
+        kb = ", ".join(f"{name} {size / 1e3:.0f} kB" for name, size in sorted(sizes[kind].items()))
+        print(f"{kind:>20}: warm {wall:.3f} s wall, {cpu:.3f} s CPU (min of {repeats}); {kb}")
+    for kind, (imp, draw, mpl, total) in cold.items():
+        print(f"{kind:>20}: cold imports {imp:.2f} s + drawing {draw:.2f} s (interpreter total {total:.2f} s); "
+              f"matplotlib imported: {mpl}")
+    if len(best) == 2:
+        now, before = best["canvas (now)"], best["matplotlib (before)"]
+        cn, cb = cold["canvas (now)"], cold["matplotlib (before)"]
+        print(f"ratio before / now: warm {before[0] / now[0]:.1f} wall, {before[1] / now[1]:.1f} CPU; "
+              f"cold drawing (first call, its own imports included) {cb[1] / cn[1]:.1f}; "
+              f"cold with the shared imports {(cb[0] + cb[1]) / (cn[0] + cn[1]):.1f}")
+    else:
+        print("(no git history with the matplotlib population figures: reference not timed)")
+
+
 if __name__ == "__main__":
-    if len(sys.argv) > 1 and sys.argv[1] == "figures":
+    if len(sys.argv) > 1 and sys.argv[1] == "population":
+        population(int(sys.argv[2]) if len(sys.argv) > 2 else 200, int(sys.argv[3]) if len(sys.argv) > 3 else 5)
+    elif len(sys.argv) > 1 and sys.argv[1] == "figures":
         figures(sys.argv[2] if len(sys.argv) > 2 else None, int(sys.argv[3]) if len(sys.argv) > 3 else 5)
     else:
         main(int(sys.argv[1]) if len(sys.argv) > 1 else 200)

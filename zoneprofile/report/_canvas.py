@@ -1,13 +1,15 @@
-"""A small vector canvas for the crystal figure: one drawing, written as SVG, PNG or PDF.
+"""A small vector canvas for the report's figures: one drawing, written as SVG, PNG or PDF.
 
 Why not matplotlib's axes: a crystal figure is drawn once per crystal, for
 every crystal of a campaign, and matplotlib's artist machinery (tick objects,
 text layout, two full renders for PNG and SVG) costs ~0.2 s per figure at
-best; this canvas draws the same picture in a few tens of milliseconds.
+best; this canvas draws the same picture in a few tens of milliseconds. The
+population figures (chronology, events) use it too, so that a run imports
+matplotlib only for a PDF.
 
 The model is a list of primitives in pixel coordinates (origin top left, y
 down) at :data:`DPI`: polylines, polygons, rectangles (optionally hatched),
-marker sets, an RGBA image and text. Back ends:
+segment sets, marker sets, an RGBA image and text. Back ends:
 
 * :meth:`Canvas.svg` writes them as SVG elements (text stays text);
 * :meth:`Canvas.png` rasterises them with Pillow, shapes at twice the size
@@ -15,8 +17,9 @@ marker sets, an RGBA image and text. Back ends:
 * :meth:`Canvas.pdf` replays them onto a matplotlib figure (PDF only on
   request, so its speed does not matter).
 
-:class:`Axes` adds what a plot needs on top: data-to-pixel mapping, "nice"
-ticks, grid, spines, labels, and :func:`legend`.
+:class:`Axes` adds what a plot needs on top: data-to-pixel mapping (linear,
+or logarithmic in x), "nice" ticks (:func:`log_ticks` on a log axis), grid,
+spines, labels, full-height bands, and :func:`legend`.
 """
 
 from __future__ import annotations
@@ -32,7 +35,7 @@ import numpy as np
 from zoneprofile.report.style import FIG_DPI
 
 __all__ = ["DPI", "PT", "Canvas", "Axes", "autoscale", "colour_bar", "colour_bar_width", "colour_image", "legend",
-           "nice_ticks", "text_width", "tick_labels"]
+           "log_tick_labels", "log_ticks", "nice_ticks", "step_xy", "text_width", "tick_labels"]
 
 DPI = FIG_DPI
 PT = DPI / 72.0  # pixels per point
@@ -53,12 +56,26 @@ def _rgb(colour) -> tuple[int, int, int]:
 
 
 @lru_cache(maxsize=None)
-def _font(size_px: int):
+def _font_path() -> str:
+    """DejaVu Sans as shipped with matplotlib, found without importing matplotlib (~0.3 s)."""
+    import importlib.util
+    import os
+
+    spec = importlib.util.find_spec("matplotlib")
+    for folder in (spec.submodule_search_locations or []) if spec else []:
+        path = os.path.join(folder, "mpl-data", "fonts", "ttf", "DejaVuSans.ttf")
+        if os.path.isfile(path):
+            return path
     import matplotlib
+
+    return f"{matplotlib.get_data_path()}/fonts/ttf/DejaVuSans.ttf"
+
+
+@lru_cache(maxsize=None)
+def _font(size_px: int):
     from PIL import ImageFont
 
-    path = f"{matplotlib.get_data_path()}/fonts/ttf/DejaVuSans.ttf"
-    return ImageFont.truetype(path, size_px, layout_engine=ImageFont.Layout.BASIC)
+    return ImageFont.truetype(_font_path(), size_px, layout_engine=ImageFont.Layout.BASIC)
 
 
 def _size(size_pt: float) -> int:
@@ -141,6 +158,78 @@ def tick_labels(ticks) -> list[str]:
     return [(s[1:] if s.startswith("-") and float(s) == 0 else s).replace("-", "\u2212") for s in out]
 
 
+_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+
+
+def log_ticks(lo: float, hi: float, max_n: int = 7) -> tuple[np.ndarray, np.ndarray]:
+    """Major and minor ticks of a log axis over ``[lo, hi]`` (``0 < lo < hi``).
+
+    Majors are the decades when at least three fall inside (every k-th decade
+    when there are more than ``max_n``); over a shorter range 1-2-5 × 10^k,
+    then 1-3 × 10^k, then every integer multiple of 10^k, whichever first
+    gives 3 to ``max_n`` ticks; failing that, within a factor of 3 round
+    linear values (:func:`nice_ticks`), else the largest of those sets with at
+    least two ticks. Minors are the other integer
+    multiples of 10^k inside the range (the skipped decades when striding).
+    """
+    if not (math.isfinite(lo) and math.isfinite(hi)) or lo <= 0 or hi <= lo:
+        return (np.array([lo]) if math.isfinite(lo) and lo > 0 else np.empty(0)), np.empty(0)
+    e0 = math.floor(math.log10(lo) + 1e-9)
+    e1 = math.floor(math.log10(hi) + 1e-9)
+    exps = np.arange(e0, e1 + 1)
+    tol = 1e-9
+
+    def inside(mults):
+        v = (np.asarray(mults, float)[None, :] * 10.0 ** exps[:, None]).ravel()
+        return np.unique(v[(v >= lo * (1 - tol)) & (v <= hi * (1 + tol))])
+
+    decades = inside([1])
+    every = inside(range(1, 10))
+    if decades.size > max_n:
+        stride = math.ceil(decades.size / max_n)
+        e = np.round(np.log10(decades)).astype(int)
+        major = decades[e % stride == 0]
+        return major, np.setdiff1d(decades, major)
+    sets = [decades, inside([1, 2, 5]), inside([1, 3]), every]
+    major = next((t for t in sets if 3 <= t.size <= max_n), None)
+    if major is None:
+        linear = nice_ticks(lo, hi, max_n)
+        fits = [t for t in sets if 2 <= t.size <= max_n]
+        if (linear.size >= 3 and hi / lo < 3.0) or not fits:
+            return linear, np.empty(0)
+        major = max(fits, key=lambda t: t.size)
+    return major, np.setdiff1d(every, major)
+
+
+def log_tick_labels(ticks) -> list[str]:
+    """Labels of log-axis ticks: plain numbers from 0.001 to 10000 (``'0.1'``, ``'20'``).
+
+    Others are written ``'10⁵'`` or ``'2×10⁵'``.
+    """
+    out = []
+    for v in np.asarray(ticks, dtype=float).tolist():
+        if not (v > 0 and math.isfinite(v)):
+            out.append(tick_labels([v])[0] if math.isfinite(v) else "")
+            continue
+        e = math.floor(math.log10(v) + 1e-9)
+        if -3 <= e <= 4:
+            out.append(f"{v:.6g}")
+            continue
+        m = v / 10.0**e
+        power = "10" + str(e).translate(_SUPERSCRIPT)
+        out.append(power if abs(m - 1) < 1e-6 else f"{m:.3g}\u00d7{power}")
+    return out
+
+
+def step_xy(x, y):
+    """Vertices of a post-step line: each ``y[i]`` holds from ``x[i]`` to ``x[i + 1]``."""
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    if x.size == 0:
+        return x, y
+    return np.repeat(x, 2)[1:], np.repeat(y, 2)[:-1]
+
+
 def _segments(x, y):
     """Runs of finite points of a polyline (a NaN breaks the line)."""
     x = np.asarray(x, dtype=float)
@@ -199,6 +288,14 @@ def _marker_outline(shape: str, x: float, y: float, r: float):
         return [(x - r, y + r * 0.7), (x + r, y + r * 0.7), (x, y - r)]
     if shape == "<":
         return [(x + r * 0.7, y - r), (x + r * 0.7, y + r), (x - r, y)]
+    if shape in ("P", "X"):  # a filled plus; X is the same turned by 45 degrees
+        a = r / 3.0
+        pts = [(a, r), (a, a), (r, a), (r, -a), (a, -a), (a, -r), (-a, -r), (-a, -a), (-r, -a), (-r, a), (-a, a),
+               (-a, r)]
+        if shape == "X":
+            c = math.sqrt(0.5)
+            pts = [((u - v) * c, (u + v) * c) for u, v in pts]
+        return [(x + u, y + v) for u, v in pts]
     return [(x - r, y - r), (x + r, y - r), (x + r, y + r), (x - r, y + r)]
 
 
@@ -247,6 +344,14 @@ class Canvas:
         ok = np.isfinite(x) & np.isfinite(y)
         if ok.any():
             self.shapes.append(("markers", x[ok], y[ok], shape, size_pt, face, edge, alpha))
+
+    def segments(self, x0, y0, x1, y1, colour, width_pt=1.0, *, alpha=1.0):
+        """Separate straight segments (x0, y0)-(x1, y1) in one stroke: error bars, caps, ticks, rugs."""
+        a = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (x0, y0, x1, y1)))
+        a = np.column_stack([v.ravel() for v in a]) if a[0].size else np.empty((0, 4))
+        a = a[np.isfinite(a).all(axis=1)]
+        if a.size:
+            self.shapes.append(("segments", a, colour, width_pt * PT, alpha))
 
     def image(self, rgba, x0, y0, x1, y1):
         """An RGBA uint8 array stretched over a box, nearest-neighbour."""
@@ -309,6 +414,12 @@ class Canvas:
                                f'stroke-width="1"/>\n')
                 if edge:
                     out.append(f'<rect {box} fill="none" stroke="{edge}" stroke-width="{lw:.2f}"/>\n')
+            elif kind == "segments":
+                _, a, colour, lw, alpha = op
+                v = np.round(a, 1).tolist()
+                d = "".join(f"M{p} {q}L{r} {t}" for p, q, r, t in v)
+                op_ = f' stroke-opacity="{alpha:.3g}"' if alpha < 1 else ""
+                out.append(f'<path d="{d}" fill="none" stroke="{colour}" stroke-width="{lw:.2f}"{op_}/>\n')
             elif kind == "markers":
                 out.append(_svg_markers(*op[1:]))
             elif kind == "image":
@@ -401,6 +512,12 @@ class Canvas:
                 if edge:
                     ax.add_patch(Rectangle((x0, y0), x1 - x0, y1 - y0, facecolor="none", edgecolor=edge,
                                            lw=lw / PT))
+            elif kind == "segments":
+                from matplotlib.collections import LineCollection
+
+                _, a, colour, lw, alpha = op
+                ax.add_collection(LineCollection(a.reshape(-1, 2, 2), colors=colour, linewidths=lw / PT,
+                                                 alpha=alpha))
             elif kind == "markers":
                 _, xs, ys, shape, size_pt, face, edge, alpha = op
                 ax.plot(xs, ys, ls="none", marker=shape, ms=size_pt, color=face, mec=edge or face,
@@ -487,13 +604,25 @@ def _png_shape(big, draw, op):
         else:
             pts = list(zip((xs * s).tolist(), (ys * s).tolist()))
             draw.line(pts, fill=fill, width=width, joint="curve" if width > 2 and len(pts) > 2 else None)
+    elif kind == "segments":
+        _, a, colour, lw, alpha = op
+        fill = (*_rgb(colour), round(255 * alpha))
+        width = max(1, round(lw * s))
+        for p, q, r, t in (a * s).tolist():
+            draw.line([(p, q), (r, t)], fill=fill, width=width)
     elif kind == "polygon":
         _, xs, ys, colour, alpha = op
         draw.polygon(list(zip((xs * s).tolist(), (ys * s).tolist())), fill=(*_rgb(colour), round(255 * alpha)))
     elif kind == "rect":
         _, x0, y0, x1, y1, fill, edge, lw, hatch, alpha = op
         box = (x0 * s, y0 * s, x1 * s - 1, y1 * s - 1)
-        if fill:
+        if fill and alpha >= 1:  # opaque: a plain fill (the same pixels as draw.rectangle, which truncates
+            # its corners to integers, without its per-pixel blending: ~20x faster on a tall event band)
+            ix0, iy0 = max(0, int(box[0])), max(0, int(box[1]))
+            ix1, iy1 = min(big.width, int(box[2]) + 1), min(big.height, int(box[3]) + 1)
+            if ix1 > ix0 and iy1 > iy0:
+                big.paste(_rgb(fill), (ix0, iy0, ix1, iy1))
+        elif fill:
             draw.rectangle(box, fill=(*_rgb(fill), round(255 * alpha)))
         if hatch:
             for a, b, c, d in _hatch(x0, y0, x1, y1):
@@ -534,20 +663,30 @@ class Axes:
     """A plot box on a canvas: data limits, mapping to pixels, and its frame.
 
     ``box`` is ``(left, top, right, bottom)`` in pixels. ``ylim`` may be given
-    with ``inverted=True`` for images (row 0 at the top).
+    with ``inverted=True`` for images (row 0 at the top). ``xlog=True`` makes
+    the x axis logarithmic (``xlim`` in data units, both > 0; values <= 0 map
+    to NaN, which breaks a line), with decade ticks from :func:`log_ticks`.
+    :meth:`set_ticks` replaces the ticks of an axis (e.g. one label per row).
     """
 
-    def __init__(self, canvas: Canvas, box, xlim, ylim, *, inverted=False):
+    def __init__(self, canvas: Canvas, box, xlim, ylim, *, inverted=False, xlog=False):
         self.canvas = canvas
         self.box = tuple(float(v) for v in box)
         self.xlim = (float(xlim[0]), float(xlim[1]))
         self.ylim = (float(ylim[0]), float(ylim[1]))
         self.inverted = inverted
+        self.xlog = xlog
+        self._custom = {}  # axis -> (values, labels, minor, size_pt)
 
     def x(self, v):
         x0, _, x1, _ = self.box
         lo, hi = self.xlim
-        return x0 + (np.asarray(v, dtype=float) - lo) * ((x1 - x0) / (hi - lo))
+        v = np.asarray(v, dtype=float)
+        if self.xlog:
+            lo, hi = math.log10(lo), math.log10(hi)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                v = np.where(v > 0, np.log10(np.where(v > 0, v, 1.0)), np.nan)
+        return x0 + (v - lo) * ((x1 - x0) / (hi - lo))
 
     def y(self, v):
         _, y0, _, y1 = self.box
@@ -555,11 +694,44 @@ class Axes:
         f = (np.asarray(v, dtype=float) - lo) / (hi - lo)
         return y0 + f * (y1 - y0) if self.inverted else y1 - f * (y1 - y0)
 
-    def ticks(self, axis: str):
+    def set_ticks(self, axis: str, values, labels=None, *, minor=(), size_pt=8.0):
+        """Fixed ticks for ``axis`` ("x" or "y"): values, their labels, unlabelled minor ticks, label size."""
+        values = np.asarray(values, dtype=float)
+        labels = list(labels) if labels is not None else tick_labels(values)
+        self._custom[axis] = (values, labels, np.asarray(minor, dtype=float), size_pt)
+
+    def _tick_count(self, axis: str) -> int:
         x0, y0, x1, y1 = self.box
+        return max(3, min(8, int((x1 - x0) / 55))) if axis == "x" else max(3, min(8, int((y1 - y0) / 32)))
+
+    def ticks(self, axis: str):
+        if axis in self._custom:
+            return self._custom[axis][0]
         lo, hi = self.xlim if axis == "x" else self.ylim
-        n = max(3, min(8, int((x1 - x0) / 55))) if axis == "x" else max(3, min(8, int((y1 - y0) / 32)))
-        return nice_ticks(lo, hi, n)
+        if axis == "x" and self.xlog:
+            return log_ticks(lo, hi, self._tick_count(axis))[0]
+        return nice_ticks(lo, hi, self._tick_count(axis))
+
+    def minor_ticks(self, axis: str):
+        if axis in self._custom:
+            return self._custom[axis][2]
+        if axis == "x" and self.xlog:
+            return log_ticks(*self.xlim, self._tick_count(axis))[1]
+        return np.empty(0)
+
+    def tick_text(self, axis: str) -> tuple[list[str], float]:
+        """Labels of the major ticks of ``axis`` and their size in points."""
+        if axis in self._custom:
+            return self._custom[axis][1], self._custom[axis][3]
+        t = self.ticks(axis)
+        return (log_tick_labels(t) if axis == "x" and self.xlog else tick_labels(t)), 8.0
+
+    def vspan(self, a, b, colour, *, alpha=1.0):
+        """A full-height band between data x values ``a`` and ``b`` (clipped to the box)."""
+        x0, y0, x1, y1 = self.box
+        pa, pb = np.clip(self.x([a, b]), x0, x1)
+        if np.isfinite([pa, pb]).all():
+            self.canvas.rect(pa, y0, pb, y1, fill=colour, alpha=alpha)
 
     def grid(self, colour="#DDDDDD"):
         """Light grid lines at the ticks (draw before the data)."""
@@ -576,18 +748,24 @@ class Axes:
         c = self.canvas
         x0, y0, x1, y1 = self.box
         xt, yt = self.ticks("x"), self.ticks("y")
+        (xl, xs), (yl, ys) = self.tick_text("x"), self.tick_text("y")
         tick = 3.5 * PT
-        for v, s in zip(xt, tick_labels(xt)):
+        for v, s in zip(xt, xl):
             px = float(self.x(v))
             c.line([px, px], [y1, y1 + tick], colour, 0.8)
-            c.text(px, y1 + tick + 3, s, 8, ha="center", va="top")
-        for v, s in zip(yt, tick_labels(yt)):
+            c.text(px, y1 + tick + 3, s, xs, ha="center", va="top")
+        for v, s in zip(yt, yl):
             py = float(self.y(v))
             c.line([x0 - tick, x0], [py, py], colour, 0.8)
-            c.text(x0 - tick - 3, py, s, 8, ha="right", va="center")
+            c.text(x0 - tick - 3, py, s, ys, ha="right", va="center")
+        mx, my = self.x(self.minor_ticks("x")), self.y(self.minor_ticks("y"))
+        if mx.size:
+            c.segments(mx, y1, mx, y1 + 2.0 * PT, colour, 0.6)
+        if my.size:
+            c.segments(x0 - 2.0 * PT, my, x0, my, colour, 0.6)
         c.line([x0, x0, x1], [y0, y1, y1], colour, 0.8)
-        c.text((x0 + x1) / 2, y1 + tick + 3 + 8 * PT + 5, xlabel, 9, ha="center", va="top")
-        yw = max((text_width(s, 8) for s in tick_labels(yt)), default=0.0)
+        c.text((x0 + x1) / 2, y1 + tick + 3 + xs * PT + 5, xlabel, 9, ha="center", va="top")
+        yw = max((text_width(s, ys) for s in yl), default=0.0)
         c.text(x0 - tick - 3 - yw - 6, (y0 + y1) / 2, ylabel, 9, ha="center", va="bottom", rotation=90)
         if title:
             c.text(x0, y0 - 5, title, 9.5, va="bottom")
@@ -651,12 +829,13 @@ def autoscale(*arrays, margin=0.05):
     return lo - margin * span, hi + margin * span
 
 
-def legend(canvas: Canvas, entries, *, centre_x, top, max_width, size_pt=7.5, ncol=None) -> float:
-    """Legend rows centred at ``centre_x`` below ``top``; returns the bottom in pixels.
+def legend(canvas: Canvas, entries, *, centre_x, top, max_width, size_pt=7.5, ncol=None, left=None) -> float:
+    """Legend rows centred at ``centre_x`` (or starting at ``left``) below ``top``; returns the bottom in pixels.
 
     ``entries`` are ``(label, handle)``; a handle is a dict with optional keys
-    ``line`` (colour, width_pt, dash), ``marker`` (shape, size_pt, face, edge)
-    and ``patch`` (colour, alpha).
+    ``line`` (colour, width_pt, dash), ``marker`` (shape, size_pt, face, edge),
+    ``patch`` (colour, alpha), ``caps`` (colour, width_pt: end bars of an
+    error bar) and ``tick`` (colour, width_pt: a short vertical stroke).
     """
     if not entries:
         return top
@@ -675,7 +854,7 @@ def legend(canvas: Canvas, entries, *, centre_x, top, max_width, size_pt=7.5, nc
     cols = [max(widths[k::ncol]) for k in range(ncol)]
     total = sum(cols) + col_gap * (ncol - 1)
     row_h = 1.45 * size
-    left = centre_x - total / 2
+    left = centre_x - total / 2 if left is None else left
     for k, (label, h) in enumerate(entries):
         r, col = divmod(k, ncol)
         x = left + sum(cols[:col]) + col_gap * col
@@ -686,6 +865,12 @@ def legend(canvas: Canvas, entries, *, centre_x, top, max_width, size_pt=7.5, nc
         if "line" in h:
             colour, lw, dash = h["line"]
             canvas.line([x, x + handle_w], [y, y], colour, lw, dash=dash)
+        if "caps" in h:
+            colour, lw = h["caps"]
+            canvas.segments([x, x + handle_w], y - 0.3 * size, [x, x + handle_w], y + 0.3 * size, colour, lw)
+        if "tick" in h:
+            colour, lw = h["tick"]
+            canvas.segments(x + handle_w / 2, y - 0.45 * size, x + handle_w / 2, y + 0.45 * size, colour, lw)
         if "marker" in h:
             shape, ms, face, edge = h["marker"]
             canvas.markers([x + handle_w / 2], [y], shape, ms, face, edge=edge)

@@ -1,15 +1,15 @@
 """Figures of the report: one per crystal, two per dated element for the population.
 
-The crystal figure (drawn for every crystal of a campaign, so its cost counts)
-is laid out here and drawn on the small canvas of
-:mod:`zoneprofile.report._canvas` (SVG, PNG, PDF). The population figures are
-drawn on their own matplotlib ``Figure`` (Agg canvas, no pyplot state). Every
-requested format is written atomically. Axes always carry units.
+Every figure is laid out here and drawn on the small canvas of
+:mod:`zoneprofile.report._canvas` (SVG, PNG, and PDF through matplotlib): the
+crystal figure, drawn for every crystal of a campaign, and the population
+figures (chronology and events per dated element), drawn in the main process
+after all crystals. Only a PDF imports matplotlib. Every requested format is
+written atomically. Axes always carry units.
 """
 
 from __future__ import annotations
 
-import io
 import math
 import re
 from pathlib import Path
@@ -19,6 +19,7 @@ import numpy as np
 from zoneprofile._output import write_bytes
 from zoneprofile.report._canvas import (
     DPI,
+    PT,
     Axes,
     Canvas,
     autoscale,
@@ -26,6 +27,8 @@ from zoneprofile.report._canvas import (
     colour_bar_width,
     colour_image,
     legend,
+    step_xy,
+    text_width,
 )
 from zoneprofile.report.style import (
     COLOURS,
@@ -33,8 +36,6 @@ from zoneprofile.report.style import (
     MAP_CMAP,
     SERIES,
     ZONE_FILLS,
-    apply_axes_style,
-    new_figure,
 )
 
 __all__ = [
@@ -76,39 +77,12 @@ def format_days(x) -> str:
     return out
 
 
-def _t(text) -> str:
-    """User text for a matplotlib label: ``$`` would start mathtext, so escape it."""
-    return str(text).replace("$", r"\$")
-
-
 def _quantity_label(column: str) -> str:
     column = str(column)
     if column.endswith("_ppm"):
         return f"{column[:-4]} (ppm)"
     unit = _UNITS.get(column, "")
     return f"{column} ({unit})" if unit else column
-
-
-def _save(fig, path: Path, formats) -> list[Path]:
-    written = []
-    base = path.with_suffix("") if path.suffix.lower().lstrip(".") in FIGURE_FORMATS else path
-    for fmt in formats:
-        fmt = fmt.lower().lstrip(".")
-        if fmt not in FIGURE_FORMATS:
-            from zoneprofile._validation import InputError
-
-            message = f"unknown figure format '{fmt}'; choose from {', '.join(FIGURE_FORMATS)}"
-            raise InputError(message)
-        buf = io.BytesIO()
-        meta = {"Software": None} if fmt == "png" else ({"Date": None} if fmt in ("svg",) else {})
-        if fmt == "pdf":
-            meta = {"CreationDate": None, "ModDate": None}
-        import matplotlib
-
-        with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": "zoneprofile"}):
-            fig.savefig(buf, format=fmt, metadata=meta)  # SVG text stays editable text
-        written.append(write_bytes(base.with_suffix("." + fmt), buf.getvalue()))
-    return written
 
 
 # --------------------------------------------------------------------------- crystal
@@ -445,132 +419,260 @@ def render_crystal_figure(record, path, *, formats=("png",), map_dir=None) -> li
 
 
 # --------------------------------------------------------------------------- population
-def _event_spans(ax, events, *, log=False):
+# The population figures (two per dated element) are drawn on the same canvas:
+# PNG + SVG of a 200-crystal campaign in a fraction of the time matplotlib took,
+# and without importing matplotlib at all unless a PDF is asked for.
+_POP_AXES_H = 250.0  # plot box height of the chronology panels (pixels)
+_SAMPLE_STYLES = (("--", COLOURS["vermilion"]), (":", COLOURS["green"]), ("-.", COLOURS["purple"]),
+                  ("-", COLOURS["black"]))
+_EVENT_MARKERS = ("o", "s", "^", "D", "v", "P", "X")
+_EVENT_COLOURS = (COLOURS["blue"], COLOURS["vermilion"], COLOURS["green"], COLOURS["purple"], COLOURS["orange"],
+                  COLOURS["sky"], COLOURS["black"])
+
+
+def _log_limits(*arrays, margin=0.05, fallback=(1.0, 1000.0)):
+    """x limits of a log axis over every positive finite value, widened by ``margin`` of the log span."""
+    lo, hi = math.inf, -math.inf
+    for a in arrays:
+        if a is None:
+            continue
+        v = np.asarray(a, dtype=float).ravel()
+        v = v[np.isfinite(v) & (v > 0)]
+        if v.size:
+            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
+    if not math.isfinite(lo):
+        return fallback
+    a, b = math.log10(lo), math.log10(hi)
+    if b - a < 0.05:  # one value, or nearly: a factor of ~1.5 either side
+        a, b = a - 0.2, b + 0.2
+    pad = margin * (b - a)
+    return 10.0 ** (a - pad), 10.0 ** (b + pad)
+
+
+def _event_spans(ax, events):
+    """Each event's 95% time range as a light band (drawn first, under the grid and the data)."""
     for k, e in enumerate(events):
         lo, hi = e.get("p2_5_days"), e.get("p97_5_days")
         if not lo or not hi or lo <= 0:
             continue
-        a, b = (math.log10(lo), math.log10(hi)) if log else (lo, hi)
-        ax.axvspan(a, b, color=EVENT_FILLS[k % len(EVENT_FILLS)], lw=0, zorder=0)
+        ax.vspan(float(lo), float(hi), EVENT_FILLS[k % len(EVENT_FILLS)])
 
 
-def _chronology_figure(el_key, block, population):
-    camp = block["campaign"]
-    fig = new_figure(10.0, 4.3)
-    ax1 = fig.add_subplot(1, 2, 1)
-    ax2 = fig.add_subplot(1, 2, 2)
-    fig.subplots_adjust(left=0.07, right=0.98, top=0.85, bottom=0.3, wspace=0.25)
-    ecdf = camp.get("ecdf")
-    events = block.get("events") or []
-    if ecdf and ecdf.get("n"):
-        x = np.asarray(ecdf["x"])
+def _event_list(events):
+    return [e for e in events if e.get("p2_5_days") and e.get("p97_5_days") and e["p2_5_days"] > 0]
+
+
+def _ecdf_panel(canvas, el_key, block, population, cell):
+    """Empirical CDF on a log time axis: DKW band, draw envelope, per-sample curves, upper bounds."""
+    left, top, right = cell
+    ecdf = (block.get("campaign") or {}).get("ecdf")
+    samples = block.get("samples") or {}
+    unres = [u for u in population.get("unresolved") or []
+             if _key(u.get("element")) == el_key and u.get("upper_bound_days")]
+    has = bool(ecdf and ecdf.get("n"))
+    xs_all = []
+    if has:
+        x = np.asarray(ecdf["x"], dtype=float)
+        xs_all += [x * 0.7, x * 1.4]
         env = ecdf.get("draw_envelope")
         if env:
-            ax1.fill_between(env["time_days"], env["low"], env["high"], step=None, color=COLOURS["orange"],
-                             alpha=0.3, lw=0, label="spread from time draws (95%)")
-        xs = np.concatenate([[x[0] * 0.7], x, [x[-1] * 1.4]])
-        def steps(v, start, end):
-            return np.concatenate([[start], v, [end]])
-        ax1.fill_between(xs, steps(np.asarray(ecdf["lower"]), 0.0, ecdf["lower"][-1]),
-                         steps(np.asarray(ecdf["upper"]), min(ecdf["halfwidth"], 1.0), 1.0), step="post",
-                         color=SERIES["dkw"][0], alpha=0.35, lw=0,
-                         label=f"DKW band ({100 * ecdf['confidence']:.0f}%)")
-        ax1.step(xs, steps(np.asarray(ecdf["cdf"]), 0.0, 1.0), where="post", color=SERIES["ecdf"][0], lw=1.8,
-                 label=f"all samples (n = {ecdf['n']})")
-        styles = ["--", ":", "-.", (0, (5, 1, 1, 1))]
-        colours = [COLOURS["vermilion"], COLOURS["green"], COLOURS["purple"], COLOURS["black"]]
-        samples = block.get("samples") or {}
+            xs_all.append(env.get("time_days"))
+    bounds = np.array([float(u["upper_bound_days"]) for u in unres])
+    xlim = _log_limits(*xs_all, bounds)
+    ylim = (-0.02, 1.02)
+    box_top = top + 24
+    l_margin = Axes.left_margin(ylim, _POP_AXES_H)
+    ax = Axes(canvas, (left + l_margin, box_top, right - 18, box_top + _POP_AXES_H), xlim, ylim, xlog=True)
+    x0, y0, x1, y1 = ax.box
+    ax.grid()
+    entries = []
+
+    def ends(v, start, end):
+        return np.concatenate([[start], np.asarray(v, dtype=float), [end]])
+
+    if has:
+        env = ecdf.get("draw_envelope")
+        if env and env.get("time_days"):
+            t = ax.x(env["time_days"])
+            canvas.polygon(np.concatenate([t, t[::-1]]),
+                           np.concatenate([ax.y(env["low"]), ax.y(env["high"])[::-1]]), COLOURS["orange"], alpha=0.3)
+            entries.append(("spread from time draws (95%)", {"patch": (COLOURS["orange"], 0.3)}))
+        xs = ends(x, x[0] * 0.7, x[-1] * 1.4)
+        sx, lo = step_xy(xs, ends(ecdf["lower"], 0.0, ecdf["lower"][-1]))
+        _, hi = step_xy(xs, ends(ecdf["upper"], min(ecdf["halfwidth"], 1.0), 1.0))
+        px = ax.x(sx)
+        dkw = SERIES["dkw"][0]
+        canvas.polygon(np.concatenate([px, px[::-1]]), np.concatenate([ax.y(hi), ax.y(lo)[::-1]]), dkw, alpha=0.35)
+        entries.append((f"DKW band ({100 * ecdf['confidence']:.0f}%)", {"patch": (dkw, 0.35)}))
+        c = SERIES["ecdf"][0]
+        sx, sy = step_xy(xs, ends(ecdf["cdf"], 0.0, 1.0))
+        canvas.line(ax.x(sx), ax.y(sy), c, 1.8)
+        entries.append((f"all samples (n = {ecdf['n']})", {"line": (c, 1.8, "-")}))
         if len(samples) > 1:
-            for k, (name, s) in enumerate(samples.items()):
-                se = s.get("ecdf")
+            for k, (name, smp) in enumerate(samples.items()):
+                se = smp.get("ecdf")
                 if not se or not se.get("n"):
                     continue
-                sx = np.asarray(se["x"])
-                ax1.step(np.concatenate([[sx[0] * 0.7], sx, [sx[-1] * 1.4]]),
-                         steps(np.asarray(se["cdf"]), 0.0, 1.0), where="post",
-                         color=colours[k % 4], ls=styles[k % 4], lw=1.1, label=_t(f"{name} (n = {se['n']})"))
-        ax1.set_xscale("log")
-    unres = [u for u in population.get("unresolved") or [] if _key(u.get("element")) == el_key]
-    for k, u in enumerate(unres):
-        if u.get("upper_bound_days"):
-            c, _, m = SERIES["unresolved"]
-            ax1.plot([u["upper_bound_days"]], [0.02], marker=m, color=c, ls="none", ms=6,
-                     label="upper bound (not in ECDF)" if k == 0 else None)
-    ax1.set_ylim(-0.02, 1.02)
-    apply_axes_style(ax1, xlabel="time since boundary formed (days, log scale)",
-                     ylabel="fraction of dated boundaries", title="Empirical CDF of boundary times")
-    if ax1.get_legend_handles_labels()[0]:
-        ax1.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.24), ncol=2, frameon=False)
+                ls, colour = _SAMPLE_STYLES[k % len(_SAMPLE_STYLES)]
+                sxv = np.asarray(se["x"], dtype=float)
+                qx, qy = step_xy(ends(sxv, sxv[0] * 0.7, sxv[-1] * 1.4), ends(se["cdf"], 0.0, 1.0))
+                canvas.line(ax.x(qx), ax.y(qy), colour, 1.1, dash=ls)
+                entries.append((f"{name} (n = {se['n']})", {"line": (colour, 1.1, ls)}))
+    else:
+        canvas.text((x0 + x1) / 2, (y0 + y1) / 2, "no resolved boundary", 8, ha="center", va="center")
+    if bounds.size:
+        c, _, m = SERIES["unresolved"]
+        canvas.markers(ax.x(bounds), ax.y(np.full(bounds.size, 0.02)), m, 6, c)
+        entries.append(("upper bound (not in ECDF)", {"marker": (m, 6, c, None)}))
+    ax.frame(xlabel="time since boundary formed (days, log scale)", ylabel="fraction of dated boundaries",
+             title="Empirical CDF of boundary times")
+    return legend(canvas, entries, centre_x=(x0 + x1) / 2, top=y1 + _BELOW, max_width=right - left - 10,
+                  size_pt=7, ncol=2)
 
-    kde = camp.get("kde")
-    _event_spans(ax2, events, log=True)
+
+def _kde_panel(canvas, el_key, block, population, cell):
+    """Kernel density of log10 time on a log time axis: bootstrap band, medians as a rug, events."""
+    left, top, right = cell
+    kde = (block.get("campaign") or {}).get("kde")
+    events = _event_list(block.get("events") or [])
+    meds = np.array([float(b["median_days"]) for b in population.get("boundaries") or []
+                     if _key(b.get("element")) == el_key and b.get("median_days")], dtype=float)
     if kde:
-        g = np.asarray(kde["log10_time_days"])
-        ax2.fill_between(g, kde["band_low"], kde["band_high"], color=SERIES["kde"][0], alpha=0.25, lw=0,
-                         label="bootstrap band (95%)")
-        ax2.plot(g, kde["density_per_log10_day"], color=SERIES["kde"][0], lw=1.8,
-                 label=f"kernel density (h = {kde['bandwidth_log10']:.2f})")
-        meds = [math.log10(b["median_days"]) for b in population.get("boundaries") or []
-                if _key(b.get("element")) == el_key]
-        ymax = max(max(kde["band_high"]), max(kde["density_per_log10_day"])) or 1.0
-        ax2.plot(meds, [-0.04 * ymax] * len(meds), "|", color=COLOURS["black"], ms=9, label="boundary medians")
-    for k, e in enumerate(events):
+        t = 10.0 ** np.asarray(kde["log10_time_days"], dtype=float)
+        dens = np.asarray(kde["density_per_log10_day"], dtype=float)
+        band_lo = np.asarray(kde["band_low"], dtype=float)
+        band_hi = np.asarray(kde["band_high"], dtype=float)
+        ymax = float(np.nanmax(np.concatenate([band_hi, dens]))) or 1.0
+        xlim = _log_limits(t, margin=0.02)
+    else:
+        ymax = 1.0
+        xlim = _log_limits([e["p2_5_days"] for e in events], [e["p97_5_days"] for e in events], meds)
+    ylim = (-0.1 * ymax, 1.06 * ymax)
+    box_top = top + 24
+    l_margin = Axes.left_margin(ylim, _POP_AXES_H)
+    ax = Axes(canvas, (left + l_margin, box_top, right - 18, box_top + _POP_AXES_H), xlim, ylim, xlog=True)
+    x0, y0, x1, y1 = ax.box
+    _event_spans(ax, events)
+    ax.grid()
+    entries = []
+    if kde:
+        c = SERIES["kde"][0]
+        px = ax.x(t)
+        canvas.polygon(np.concatenate([px, px[::-1]]), np.concatenate([ax.y(band_hi), ax.y(band_lo)[::-1]]), c,
+                       alpha=0.25)
+        entries.append(("bootstrap band (95%)", {"patch": (c, 0.25)}))
+        canvas.line(px, ax.y(dens), c, 1.8)
+        entries.append((f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)", {"line": (c, 1.8, "-")}))
+    else:
+        canvas.text((x0 + x1) / 2, (y0 + y1) / 2, "no resolved boundary", 8, ha="center", va="center")
+    if meds.size:
+        mx = ax.x(meds)
+        mid = float(ax.y(-0.05 * ymax))
+        half = 4.5 * PT
+        canvas.segments(mx, mid - half, mx, mid + half, COLOURS["black"], 1.0)
+        entries.append(("boundary medians", {"tick": (COLOURS["black"], 1.0)}))
+    for e in events:
         if e.get("median_days"):
-            ax2.axvline(math.log10(e["median_days"]), color=COLOURS["black"], ls="--", lw=0.8)
-            ax2.text(math.log10(e["median_days"]), 1.0, _t(f" {e['id']}"), transform=ax2.get_xaxis_transform(),
-                     fontsize=7, va="top")
-    apply_axes_style(ax2, xlabel="log10(time since boundary formed / days)", ylabel="density (per log10 day)",
-                     title="Kernel density of log10 time")
-    if ax2.get_legend_handles_labels()[0]:
-        ax2.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.24), ncol=2, frameon=False)
-    fig.suptitle(_t(f"Recharge chronology: {block.get('element') or 'unknown element'}"), fontsize=11, x=0.02,
-                 ha="left")
-    return fig
+            px = float(ax.x(float(e["median_days"])))
+            if x0 <= px <= x1:
+                canvas.line([px, px], [y0, y1], COLOURS["black"], 0.8, dash="--")
+                canvas.text(px + 3, y0 + 3, str(e["id"]), 7, va="top")
+    ax.frame(xlabel="time since boundary formed (days, log scale)", ylabel="density (per log10 day)",
+             title="Kernel density of log10 time")
+    return legend(canvas, entries, centre_x=(x0 + x1) / 2, top=y1 + _BELOW, max_width=right - left - 10,
+                  size_pt=7, ncol=2)
 
 
-def _events_figure(el_key, block, population):
+def chronology_canvas(el_key, block, population) -> Canvas:
+    """The chronology figure of one element: ECDF (left) and kernel density (right), both on log time."""
+    width = DPI * 10.0
+    canvas = Canvas(width, 1)
+    canvas.text(0.02 * width, 14, f"Recharge chronology: {block.get('element') or 'unknown element'}", 11, va="top")
+    mid = width / 2
+    bottom = max(_ecdf_panel(canvas, el_key, block, population, (_PAD, _HEADER, mid)),
+                 _kde_panel(canvas, el_key, block, population, (mid, _HEADER, width - _PAD)))
+    canvas.height = int(math.ceil(bottom + _PAD))
+    return canvas
+
+
+def _natural(text) -> tuple:
+    """Sort key that orders ``c2`` before ``c10``."""
+    return tuple((0, int(p), "") if p.isdigit() else (1, 0, p) for p in re.split(r"(\d+)", str(text)) if p)
+
+
+def events_canvas(el_key, block, population) -> Canvas:
+    """One row per crystal: each dated boundary's median and 95% range, by event; upper bounds; event bands."""
     rows = [b for b in population.get("boundaries") or [] if _key(b.get("element")) == el_key]
     unres = [u for u in population.get("unresolved") or [] if _key(u.get("element")) == el_key]
-    keys = sorted({(r["sample"], r["crystal"]) for r in rows + unres})
+    keys = sorted({(r["sample"], r["crystal"]) for r in rows + unres},
+                  key=lambda k: (_natural(k[0]), _natural(k[1])))
     n = max(len(keys), 1)
-    height = min(1.4 + 0.24 * n, 40.0)
-    fig = new_figure(8.0, height)
-    ax = fig.add_subplot(1, 1, 1)
-    fig.subplots_adjust(left=0.25, right=0.8, top=1 - 0.55 / height, bottom=0.6 / height)
     events = block.get("events") or []
-    _event_spans(ax, events)
-    ypos = {k: i for i, k in enumerate(keys)}
-    markers = ["o", "s", "^", "D", "v", "P", "X"]
-    colours = [COLOURS["blue"], COLOURS["vermilion"], COLOURS["green"], COLOURS["purple"], COLOURS["orange"],
-               COLOURS["sky"], COLOURS["black"]]
+    spans = _event_list(events)
     ev_index = {e["id"]: k for k, e in enumerate(events)}
-    groups = {}  # one errorbar call per event (one per row is ~50x slower to build and draw)
+    groups = {}
     for r in rows:
         groups.setdefault(r.get("event"), []).append(r)
-    for event, members in groups.items():
-        k = ev_index.get(event, 0)
-        med = np.array([r["median_days"] for r in members], dtype=float)
-        lo = np.array([r["p2_5_days"] for r in members], dtype=float)
-        hi = np.array([r["p97_5_days"] for r in members], dtype=float)
-        y = [ypos[(r["sample"], r["crystal"])] for r in members]
-        ax.errorbar(med, y, xerr=[med - lo, hi - med], fmt=markers[k % 7], color=colours[k % 7], ms=5,
-                    capsize=2, lw=1.0, label=_t(event))
-    bounds = [(u["upper_bound_days"], ypos[(u["sample"], u["crystal"])]) for u in unres if u.get("upper_bound_days")]
+    bounds = [u for u in unres if u.get("upper_bound_days")]
+    # legend entries first: their width sets the right margin
+    entries = []
+    styles = {}
+    for event in sorted(groups, key=lambda e: (ev_index.get(e, len(events)), str(e))):
+        k = ev_index.get(event, len(ev_index))
+        styles[event] = (_EVENT_MARKERS[k % 7], _EVENT_COLOURS[k % 7])
+        m, c = styles[event]
+        entries.append((str(event) if event is not None else "no event",
+                        {"line": (c, 1.0, "-"), "caps": (c, 1.0), "marker": (m, 5, c, None)}))
     if bounds:
         c, _, m = SERIES["unresolved"]
-        ax.plot(*zip(*bounds), marker=m, color=c, ls="none", ms=7, label="upper bound")
-    ax.set_yticks(range(len(keys)))
-    ax.set_yticklabels([_t(f"{s} / {c}") for s, c in keys], fontsize=7)
-    ax.set_ylim(-0.7, len(keys) - 0.3)
-    ax.invert_yaxis()
-    if rows or unres:
-        ax.set_xscale("log")
-    apply_axes_style(ax, xlabel="time since boundary formed (days, log scale; bars: 95%)",
-                     ylabel="sample / crystal",
-                     title=_t(f"Dated boundaries and recharge events: {block.get('element') or 'unknown'}"))
-    if ax.get_legend_handles_labels()[0]:
-        ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, title="event")
-    return fig
+        entries.append(("upper bound", {"marker": (m, 7, c, None)}))
+    size = round(7 * PT)
+    legend_w = max((2.8 * size + text_width(label, 7) for label, _ in entries), default=0.0)
+    legend_w = max(legend_w, text_width("event", 8))
+    width = DPI * 8.0
+    pitch = min(0.24 * DPI, max(13.0, (40.0 * DPI - 120.0) / n))  # 0.24 in a row; never below the 7 pt text
+    labels = [f"{smp} / {cr}" for smp, cr in keys]
+    label_w = max((text_width(t, 7) for t in labels), default=0.0)
+    tick = 3.5 * PT
+    box_left = _PAD + 9 * PT + 10 + label_w + tick + 3
+    box_right = width - _PAD - (legend_w + 24 if entries else 10)
+    if box_right - box_left < 0.35 * width:  # very long names: widen the figure rather than squash the plot
+        width += 0.35 * width - (box_right - box_left)
+        box_right = width - _PAD - (legend_w + 24 if entries else 10)
+    box_top = _PAD + 30
+    box_bottom = box_top + max(pitch * (n + 0.4), text_width("sample / crystal", 9) + 12)
+    canvas = Canvas(width, box_bottom + _BELOW + _PAD)
+    vals = [[r.get(k) for r in rows] for k in ("median_days", "p2_5_days", "p97_5_days")]
+    xlim = _log_limits(*vals, [u["upper_bound_days"] for u in bounds], [e["p2_5_days"] for e in spans],
+                       [e["p97_5_days"] for e in spans])
+    ax = Axes(canvas, (box_left, box_top, box_right, box_bottom), xlim, (-0.7, n - 0.3), inverted=True, xlog=True)
+    ax.set_ticks("y", np.arange(len(keys)), labels, size_pt=7)
+    _event_spans(ax, spans)
+    ax.grid()
+    ypos = {k: i for i, k in enumerate(keys)}
+    cap = 2.0 * PT
+    for event, members in groups.items():
+        m, c = styles[event]
+        med = ax.x([r["median_days"] for r in members])
+        lo = ax.x([r["p2_5_days"] for r in members])
+        hi = ax.x([r["p97_5_days"] for r in members])
+        y = ax.y([ypos[(r["sample"], r["crystal"])] for r in members])
+        canvas.segments(lo, y, hi, y, c, 1.0)
+        canvas.segments(np.concatenate([lo, hi]), np.concatenate([y, y]) - cap, np.concatenate([lo, hi]),
+                        np.concatenate([y, y]) + cap, c, 1.0)
+        canvas.markers(med, y, m, 5, c)
+    if bounds:
+        c, _, m = SERIES["unresolved"]
+        canvas.markers(ax.x([u["upper_bound_days"] for u in bounds]),
+                       ax.y([ypos[(u["sample"], u["crystal"])] for u in bounds]), m, 7, c)
+    ax.frame(xlabel="time since boundary formed (days, log scale; bars: 95%)", ylabel="sample / crystal",
+             title=f"Dated boundaries and recharge events: {block.get('element') or 'unknown'}")
+    if entries:
+        lx = box_right + 16
+        canvas.text(lx, box_top, "event", 8, va="top")
+        legend(canvas, entries, centre_x=0.0, left=lx, top=box_top + 8 * PT + 4, max_width=legend_w, size_pt=7,
+               ncol=1)
+    return canvas
 
 
 def _key(element) -> str:
@@ -580,8 +682,12 @@ def _key(element) -> str:
 def render_population_figures(population, fig_dir, *, formats=("png",)) -> dict:
     """Chronology figures per dated element: ECDF + KDE, and the event strip plot.
 
+    Drawn on the canvas of :mod:`zoneprofile.report._canvas`; matplotlib is
+    imported only when ``"pdf"`` is among ``formats``.
+
     Returns ``{element: {"chronology": [paths], "events": [paths]}}``.
     """
+    fmts = _check_formats(formats)
     fig_dir = Path(fig_dir)
     out = {}
     for el_key, block in (population.get("elements") or {}).items():
@@ -589,9 +695,9 @@ def render_population_figures(population, fig_dir, *, formats=("png",)) -> dict:
                 _key(u.get("element")) == el_key for u in population.get("unresolved") or []):
             continue
         name = slug(el_key)
-        f1 = _chronology_figure(el_key, block, population)
-        p1 = _save(f1, fig_dir / f"chronology-{name}.png", formats)
-        f2 = _events_figure(el_key, block, population)
-        p2 = _save(f2, fig_dir / f"events-{name}.png", formats)
-        out[el_key] = {"chronology": p1, "events": p2}
+        out[el_key] = {}
+        for kind, draw in (("chronology", chronology_canvas), ("events", events_canvas)):
+            canvas = draw(el_key, block, population)
+            out[el_key][kind] = [write_bytes(fig_dir / f"{kind}-{name}.{fmt}", getattr(canvas, fmt)())
+                                 for fmt in fmts]
     return out

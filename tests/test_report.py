@@ -499,7 +499,7 @@ def test_chronology_figure_shows_every_part_with_units(pop_figures):
     expected = ["Recharge chronology: Mg", "Empirical CDF of boundary times", "Kernel density of log10 time",
                 "fraction of dated boundaries", "density (per log10 day)", "spread from time draws (95%)",
                 "DKW band (95%)", f"all samples (n = {ecdf['n']})", "upper bound (not in ECDF)",
-                "bootstrap band (95%)", f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)",
+                "bootstrap over crystals (95%)", f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)",
                 "boundary medians"]
     expected += [f"{name} (n = {s['ecdf']['n']})" for name, s in block["samples"].items()]
     expected += [e["id"] for e in block["events"]]

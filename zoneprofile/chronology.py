@@ -372,14 +372,14 @@ def _kde_block(rows, grid, rng, *, n_boot, bandwidth, confidence):
             members.append([])
         members[crystal_of[key]].append(i)
     members = [np.asarray(m) for m in members]
-    mat, counts = _draw_matrix(rows)
-    logmat = np.log10(mat)
+    # the band is the sampling uncertainty of this curve: crystals resampled, the same
+    # points (medians) and the same bandwidth, so the band brackets the curve; the dating
+    # spread of each boundary is shown by the ECDF's draw envelope and the event strip
     boots = []
     for _ in range(n_boot):
         pick = rng.integers(0, len(members), size=len(members))
         idx = np.concatenate([members[k] for k in pick])
-        col = (rng.random(idx.size) * counts[idx]).astype(int)
-        dv, _ = kde_log10(logmat[idx, col], grid, bandwidth=bandwidth)
+        dv, _ = kde_log10(pts[idx], grid, bandwidth=h)
         boots.append(dv)
     a = (1.0 - confidence) / 2.0
     if boots:

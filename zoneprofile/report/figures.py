@@ -560,7 +560,7 @@ def _kde_panel(canvas, el_key, block, population, cell):
         px = ax.x(t)
         canvas.polygon(np.concatenate([px, px[::-1]]), np.concatenate([ax.y(band_hi), ax.y(band_lo)[::-1]]), c,
                        alpha=0.25)
-        entries.append(("bootstrap band (95%)", {"patch": (c, 0.25)}))
+        entries.append(("bootstrap over crystals (95%)", {"patch": (c, 0.25)}))
         canvas.line(px, ax.y(dens), c, 1.8)
         entries.append((f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)", {"line": (c, 1.8, "-")}))
     else:

@@ -152,7 +152,7 @@ def _chronology_section(population, pop_figs) -> str:
             parts.append(_img(figs["chronology"], f"Chronology of {el_key}",
                               "Left: empirical CDF of boundary median times with the DKW band; per-sample "
                               "curves where there are several samples. Right: kernel density on "
-                              "log10(time) with its 95% bootstrap band. Shaded spans: recharge events."))
+                              "log10(time) with its 95% bootstrap band over crystals. Shaded spans: recharge events."))
         if figs.get("events"):
             parts.append(_img(figs["events"], f"Dated boundaries of {el_key}",
                               "Each dated boundary with its 95% interval, by crystal; symbols by event; "

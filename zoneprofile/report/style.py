@@ -10,7 +10,7 @@ deuteranomaly.
 
 from __future__ import annotations
 
-__all__ = ["COLOURS", "SERIES", "MAP_CMAP", "apply_axes_style", "FIG_DPI", "new_figure", "CSS"]
+__all__ = ["COLOURS", "SERIES", "MAP_CMAP", "FIG_DPI", "CSS"]
 
 # name -> hex (Okabe & Ito 2008)
 COLOURS = {
@@ -49,31 +49,6 @@ EVENT_FILLS = ("#D4E9F7", "#F9DCCB", "#D2EFE5", "#F4DCE9", "#FBE3C4")  # light b
 
 MAP_CMAP = "cividis"
 FIG_DPI = 110
-
-
-def new_figure(width_in: float, height_in: float):
-    """A matplotlib Figure without pyplot global state (Agg canvas)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width_in, height_in), dpi=FIG_DPI)
-    FigureCanvasAgg(fig)
-    return fig
-
-
-def apply_axes_style(ax, *, xlabel: str, ylabel: str, title: str | None = None) -> None:
-    """Label both axes (with units, passed in the label) and set a quiet style."""
-    ax.set_xlabel(xlabel, fontsize=9)
-    ax.set_ylabel(ylabel, fontsize=9)
-    if title:
-        # a plain text artist, not set_title: matplotlib re-measures every tick
-        # label to place a title, which doubles the drawing time of a figure
-        ax.text(0.0, 1.03, title, transform=ax.transAxes, ha="left", va="bottom", fontsize=9.5)
-    ax.tick_params(labelsize=8)
-    for side in ("top", "right"):
-        ax.spines[side].set_visible(False)
-    ax.grid(True, color="#DDDDDD", linewidth=0.5)
-    ax.set_axisbelow(True)
 
 
 CSS = """

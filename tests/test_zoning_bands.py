@@ -70,3 +70,14 @@ def test_lomb_scargle_power_over_noise_variance_is_unit_exponential():
     values = np.array(values)
     assert values.mean() == pytest.approx(1.0, abs=0.15)
     assert np.mean(values > 3.0) == pytest.approx(np.exp(-3.0), abs=0.03)
+
+
+def test_local_statistic_of_many_wavelengths_at_once_is_row_by_row():
+    # invariant: the batched scan over wavelengths equals one call per wavelength
+    x, y, _ = synthetic_zoned_profile(seed=5, length_um=120, spacing_um=(0.8, 1.6), noise_sd=0.5,
+                                      bands=[(30, 80, 6.0, 1.5)])
+    lams = np.geomspace(2.5, 25.0, 17)
+    rows = local_sine_statistic(x, y, 0.5, lams, 1.5 * lams)
+    assert rows.shape == (lams.size, x.size)
+    for lam, row in zip(lams, rows):
+        np.testing.assert_array_equal(row, local_sine_statistic(x, y, 0.5, lam, 1.5 * lam))

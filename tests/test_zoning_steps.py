@@ -177,3 +177,82 @@ def test_two_adjacent_noisy_points_are_not_a_step():
     steps = analyse_zoning(np.round(d, 2), an).to_dict()["steps"]
     assert [s["kind"] for s in steps] == ["reverse"]
     assert abs(steps[0]["position_um"] - 70.0) < 2.0
+
+
+def test_batched_jump_tests_match_window_by_window_least_squares(monkeypatch):
+    # invariant: the batch of local jump tests (all windows of all candidates in one
+    # padded least-squares batch) picks the same gap, window and half-width as the
+    # window-by-window fits, with the same jump, error and z (rounding apart)
+    from zoneprofile.zoning import steps as steps_module
+    from zoneprofile.zoning._local import median_spacing
+    from zoneprofile.zoning.steps import _bounds_for, _multi_scale_test_general, _multi_scale_tests
+
+    fallbacks = []
+    monkeypatch.setattr(steps_module, "_multi_scale_test_general",
+                        lambda *a: fallbacks.append(a[2]) or _multi_scale_test_general(*a))
+    rng = np.random.default_rng(7)
+    compared = 0
+    for case, seed in itertools.product(("steps", "close-steps", "band", "noise"), range(3)):
+        x, y, _ = synthetic_case(case, seed)
+        sigma, spacing = estimate_noise_sd(x, y), median_spacing(x)
+        centre = rng.uniform(x[10], x[-10])
+        k_edge = min(int(np.searchsorted(x, centre + 30.0)), x.size - 3)
+        # one blocked zone; another whose edge falls exactly on a point (tested point by point)
+        blocked = [(centre - 2.0, centre + 2.0), (float(x[k_edge]), float(x[k_edge]) + 1.5)]
+        ks = [k for k in range(2, x.size - 1) if not any(a <= 0.5 * (x[k - 1] + x[k]) <= b for a, b in blocked)]
+        bounds = [_bounds_for(0.5 * (x[k - 1] + x[k]), blocked) for k in ks]
+        half = max(15.0, 6.0 * spacing)
+        for halves in ((half,), (min(max(0.4 * half, 4.0 * spacing), half), half)):
+            batch = _multi_scale_tests(x, y, ks, bounds, halves, sigma, blocked, 1e-3, 3 * sigma, spacing)
+            for k, b, got in zip(ks, bounds, batch):
+                ref = _multi_scale_test_general(x, y, k, b, halves, sigma, blocked, 1e-3, 3 * sigma, spacing)
+                assert (got is None) == (ref is None), (case, seed, k)
+                if ref is None:
+                    continue
+                assert (got["k"], got["lo"], got["hi"], got["half"]) == (ref["k"], ref["lo"], ref["hi"], ref["half"])
+                for key in ("change", "se", "z", "p"):
+                    assert got[key] == pytest.approx(ref[key], rel=1e-9)
+                compared += 1
+    assert compared > 50
+    assert fallbacks  # the windows holding a point on a blocked edge went point by point
+
+
+def test_erf_fit_is_scipy_least_squares_with_its_own_differences():
+    # reference: scipy.optimize.least_squares (trust-region reflective, built-in '2-point'
+    # Jacobian); our fit computes the same differences in one pass and calls the same
+    # solver without its wrappers, so the optimum must agree bit for bit
+    from scipy.optimize import least_squares
+
+    from zoneprofile.zoning.steps import _erf_jacobian, _erf_model, _trust_region_fit
+
+    for seed, (pos, change, width) in enumerate([(40.0, -8.0, 0.0), (41.3, 6.0, 3.0), (39.0, -4.0, 1.0)]):
+        x, y, _ = synthetic_zoned_profile(seed=seed, length_um=80, spacing_um=(1.0, 2.5), noise_sd=0.5,
+                                          steps=[(pos, change, width)], trend_per_um=0.02)
+        t, yy = x[(x > pos - 15) & (x < pos + 15)], y[(x > pos - 15) & (x < pos + 15)]
+        k = int(np.searchsorted(x, pos))
+        lower = np.array([-np.inf, -np.inf, -np.inf, x[k - 2], np.log(0.02)])
+        upper = np.array([np.inf, np.inf, np.inf, x[k + 1], np.log(3.0)])
+        scale = [60.0, 0.1, abs(change), 1.5, 1.0]
+        for s0 in (0.3, 1.5):
+            p0 = [60.0, 0.0, change, 0.5 * (x[k - 1] + x[k]), np.log(s0)]
+
+            def residuals(p):
+                return _erf_model(p, t) - yy
+
+            ours = _trust_region_fit(residuals, _erf_jacobian(t, yy, lower, upper), p0, lower, upper, scale)
+            ref = least_squares(residuals, p0, bounds=(lower, upper), x_scale=scale)
+            assert np.array_equal(ours.x, ref.x) and ours.cost == ref.cost
+            assert np.array_equal(ours.jac, ref.jac)
+
+
+def test_shared_work_between_passes_gives_the_same_steps():
+    x, y, truth = synthetic_case("steps", 3)
+    sigma = truth["noise_sd"]
+    reuse = {}
+    shared = [detect_steps(x, y, sigma, windows=w, reuse=reuse) for w in ("wide", "both", "both")]
+    alone = [detect_steps(x, y, sigma, windows=w) for w in ("wide", "both")]
+    assert [s.to_dict() for s in shared[0]] == [s.to_dict() for s in alone[0]]
+    assert [s.to_dict() for s in shared[1]] == [s.to_dict() for s in alone[1]]
+    assert [s.to_dict() for s in shared[2]] == [s.to_dict() for s in alone[1]]  # copies: callers cannot spoil it
+    with pytest.raises(ValueError, match="another profile"):
+        detect_steps(x, y + 1.0, sigma, reuse=reuse)

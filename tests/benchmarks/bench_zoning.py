@@ -4,6 +4,21 @@
 
 Prints, for each profile kind, the figures the zoning issue asks for (noise is
 never given: it is estimated from each profile), and the time per profile.
+
+Then the speed of the step detector (issue 6: a 200-crystal campaign in
+<= 60 s on 2 cores leaves ~0.06 s per crystal for reading the zoning),
+measured side by side in one run, each pair giving identical results:
+
+1. the local jump tests of every step candidate: one padded least-squares
+   batch vs window-by-window fits;
+2. the erf refinement of the steps: forward differences in one pass and the
+   trust-region solver called directly vs ``scipy.optimize.least_squares`` with
+   its built-in differences;
+3. the two passes of ``analyse_zoning`` (wide windows, then short and wide)
+   sharing their candidate search and fits vs running apart;
+4. ``analyse_zoning`` per profile, by kind, beside the ~0.06 s budget (the
+   demo campaign's crystals hold 1–3 steps; the four-step kinds are the
+   heavy end).
 """
 
 import sys
@@ -11,7 +26,7 @@ import time
 
 import numpy as np
 
-from zoneprofile.zoning import analyse_zoning, synthetic_case
+from zoneprofile.zoning import analyse_zoning, estimate_noise_sd, synthetic_case
 
 
 def match(found, truth, tol=2.0):
@@ -65,5 +80,103 @@ def main(n):
         print(line, flush=True)
 
 
+def _cpu(fn, repeats=3):
+    """Smallest CPU time of ``repeats`` calls of ``fn`` (the machine is shared) and its result."""
+    best, out = np.inf, None
+    for _ in range(repeats):
+        t0 = time.process_time()
+        out = fn()
+        best = min(best, time.process_time() - t0)
+    return best, out
+
+
+def speed(n):
+    from scipy.optimize import least_squares
+
+    from zoneprofile.zoning import detect_steps
+    from zoneprofile.zoning import steps as steps_module
+    from zoneprofile.zoning._local import median_spacing
+
+    profiles = [synthetic_case(case, seed)[:2] for case in ("steps", "close-steps", "resorption", "steps+band")
+                for seed in range(n)]
+    sigmas = [estimate_noise_sd(x, y) for x, y in profiles]
+    analyse_zoning(*profiles[0])  # imports
+
+    # 1. jump tests of all candidates of the first round (no step accepted yet)
+    jobs = []
+    for (x, y), sigma in zip(profiles, sigmas):
+        spacing = median_spacing(x)
+        half = max(15.0, 6.0 * spacing)
+        halves = (min(max(6.0 * half / 15.0, 4.0 * spacing), half), half)
+        ks = steps_module.candidate_change_points(y, sigma)
+        jobs.append((x, y, ks, halves, sigma, spacing, 1e-5, 3.0 * sigma))
+    bounds = [(-np.inf, np.inf)]
+
+    def batch():
+        return [steps_module._multi_scale_tests(x, y, ks, bounds * len(ks), h, s, [], p, c, sp)
+                for x, y, ks, h, s, sp, p, c in jobs]
+
+    def one_by_one():
+        return [[steps_module._multi_scale_test_general(x, y, k, bounds[0], h, s, [], p, c, sp) for k in ks]
+                for x, y, ks, h, s, sp, p, c in jobs]
+
+    t_batch, got = _cpu(batch)
+    t_ref, ref = _cpu(one_by_one)
+    same = all((g is None and r is None) or (g is not None and r is not None and g["k"] == r["k"]
+               and g["lo"] == r["lo"] and g["hi"] == r["hi"]) for gg, rr in zip(got, ref) for g, r in zip(gg, rr))
+    n_cand = sum(len(j[2]) for j in jobs)
+    print(f"jump tests, {n_cand} candidates: batch {t_batch:.3f} s, window by window {t_ref:.3f} s, "
+          f"{t_ref / t_batch:.1f}x faster; same choices: {same}", flush=True)
+
+    # 2. erf refinements: the fits analyse_zoning makes, replayed
+    fits = []
+    for (x, y), sigma in zip(profiles, sigmas):
+        reuse = {}
+        detect_steps(x, y, sigma, windows="wide", reuse=reuse)
+        detect_steps(x, y, sigma, reuse=reuse)
+        fits += [(x, y, key[1], dict(key[2])) for key in reuse if key[0] == "fit"]
+
+    def refine():
+        return [steps_module.fit_step(x, y, k, **kw) for x, y, k, kw in fits]
+
+    def builtin(residuals, jacobian, p0, lower, upper, x_scale):
+        return least_squares(residuals, p0, bounds=(lower, upper), x_scale=x_scale)
+
+    t_fast, fast = _cpu(refine)
+    direct = steps_module._trust_region_fit
+    steps_module._trust_region_fit = builtin
+    try:
+        t_ls, slow = _cpu(refine)
+    finally:
+        steps_module._trust_region_fit = direct
+    same = all((a is None and b is None) or a.to_dict() == b.to_dict() for a, b in zip(fast, slow))
+    print(f"erf refinements, {len(fits)} fits: {t_fast:.3f} s vs least_squares with its own differences "
+          f"{t_ls:.3f} s, {t_ls / t_fast:.2f}x faster; identical steps: {same}", flush=True)
+
+    # 3. the two passes sharing their work
+    def passes(shared):
+        out = []
+        for (x, y), sigma in zip(profiles, sigmas):
+            reuse = {} if shared else None
+            out.append([detect_steps(x, y, sigma, windows="wide", reuse=reuse),
+                        detect_steps(x, y, sigma, reuse=reuse)])
+        return out
+
+    t_shared, a = _cpu(lambda: passes(True))
+    t_apart, b = _cpu(lambda: passes(False))
+    same = all([s.to_dict() for s in p] == [s.to_dict() for s in q] for pa, qa in zip(a, b) for p, q in zip(pa, qa))
+    print(f"two passes: shared {t_shared:.3f} s, apart {t_apart:.3f} s, {t_apart / t_shared:.2f}x faster; "
+          f"identical steps: {same}", flush=True)
+
+    # 4. whole analysis per profile, by kind (the demo campaign's crystals carry 1-3 steps)
+    for case in ("resorption", "steps", "close-steps", "steps+band"):
+        kind = [synthetic_case(case, seed)[:2] for seed in range(n)]
+        t_all, _ = _cpu(lambda: [analyse_zoning(x, y) for x, y in kind])
+        per = t_all / len(kind)
+        print(f"analyse_zoning, {case:11s}: {per:.3f} CPU s per profile (budget ~0.06 s per crystal)", flush=True)
+
+
 if __name__ == "__main__":
-    main(int(sys.argv[1]) if len(sys.argv) > 1 else 30)
+    n_seeds = int(sys.argv[1]) if len(sys.argv) > 1 else 30
+    main(n_seeds)
+    speed(min(n_seeds, 10))

@@ -264,9 +264,11 @@ def analyse_zoning(
     settings_steps = dict(min_change=min_change, window_um=window_um, max_width_um=max_step_width_um, alpha=alpha)
     # bands are sought after removing only the steps seen in wide windows, which
     # average over several swings and so do not cut an oscillation into steps
-    wide = detect_steps(x, y, sigma, windows="wide", **settings_steps)
+    # (the two passes share their candidate search and erf fits)
+    reuse: dict = {}
+    wide = detect_steps(x, y, sigma, windows="wide", reuse=reuse, **settings_steps)
     bands = detect_bands(x, _residuals(x, y, wide), sigma, alpha=alpha)
-    steps = detect_steps(x, y, sigma, **settings_steps)
+    steps = detect_steps(x, y, sigma, reuse=reuse, **settings_steps)
     if bands:
         def inside(s):
             return [b for b in bands if b.start_um <= s.position_um <= b.end_um]

@@ -65,44 +65,54 @@ def local_sine_statistic(distance_um, residual, noise_sd, wavelength_um, half_wi
     """Δχ² of a sine of the given wavelength in a window centred on each point.
 
     Returns an array (NaN where the window holds fewer than ``min_points``).
-    Uses prefix sums so all windows cost O(n).
+    Uses prefix sums so all windows cost O(n). ``wavelength_um`` and
+    ``half_window_um`` may also be 1-D arrays of equal length: then row ``i``
+    of the returned 2-D array is the statistic of wavelength ``i`` (all
+    wavelengths in one batch).
     """
     x = np.asarray(distance_um, dtype=float)
     y = np.asarray(residual, dtype=float)
+    single = np.ndim(wavelength_um) == 0
+    lams = np.atleast_1d(np.asarray(wavelength_um, dtype=float))
+    halves = np.broadcast_to(np.asarray(half_window_um, dtype=float), lams.shape)
     n = x.size
-    w = 2.0 * np.pi / wavelength_um
-    s, c = np.sin(w * x), np.cos(w * x)
+    n_l = lams.size
+    w = 2.0 * np.pi / lams
+    s, c = np.sin(w[:, None] * x), np.cos(w[:, None] * x)
     xc0 = x - x.mean()
-    cols = {"1": np.ones(n), "x": xc0, "xx": xc0 * xc0, "s": s, "c": c, "xs": xc0 * s, "xc": xc0 * c,
-            "ss": s * s, "cc": c * c, "sc": s * c, "y": y, "xy": xc0 * y, "sy": s * y, "cy": c * y, "yy": y * y}
-    pref = {k: np.concatenate([[0.0], np.cumsum(v)]) for k, v in cols.items()}
-    lo = np.searchsorted(x, x - half_window_um, side="left")
-    hi = np.searchsorted(x, x + half_window_um, side="right")
-    S = {k: pref[k][hi] - pref[k][lo] for k in _SUMS}
+    ones = np.ones(n)
+    # the columns of _SUMS, each (n_l, n)
+    cols = np.stack([np.broadcast_to(ones, s.shape), np.broadcast_to(xc0, s.shape),
+                     np.broadcast_to(xc0 * xc0, s.shape), s, c, xc0 * s, xc0 * c, s * s, c * c, s * c,
+                     np.broadcast_to(y, s.shape), np.broadcast_to(xc0 * y, s.shape), s * y, c * y,
+                     np.broadcast_to(y * y, s.shape)], axis=1)
+    pref = np.concatenate([np.zeros((n_l, len(_SUMS), 1)), np.cumsum(cols, axis=2)], axis=2)
+    lo = np.searchsorted(x, (x[None, :] - halves[:, None]).ravel(), side="left").reshape(n_l, n)
+    hi = np.searchsorted(x, (x[None, :] + halves[:, None]).ravel(), side="right").reshape(n_l, n)
+    sums = np.take_along_axis(pref, hi[:, None, :], axis=2) - np.take_along_axis(pref, lo[:, None, :], axis=2)
+    S = {k: sums[:, i, :] for i, k in enumerate(_SUMS)}
     m = hi - lo
-    xtx = np.empty((n, 4, 4))
+    xtx = np.empty((n_l, n, 4, 4))
     order = [["1", "x", "s", "c"], ["x", "xx", "xs", "xc"], ["s", "xs", "ss", "sc"], ["c", "xc", "sc", "cc"]]
     for i, row in enumerate(order):
         for j, key in enumerate(row):
-            xtx[:, i, j] = S[key]
-    xty = np.stack([S["y"], S["xy"], S["sy"], S["cy"]], axis=1)
-    out = np.full(n, np.nan)
+            xtx[:, :, i, j] = S[key]
+    xty = np.stack([S["y"], S["xy"], S["sy"], S["cy"]], axis=2)
+    out = np.full((n_l, n), np.nan)
     ok = m >= min_points
-    if not np.any(ok):
-        return out
-    a4, b4 = xtx[ok], xty[ok]
-    a2, b2 = a4[:, :2, :2], b4[:, :2]
-    det4 = np.linalg.det(a4)
-    good = np.abs(det4) > 1e-10 * np.prod(np.abs(np.diagonal(a4, axis1=1, axis2=2)), axis=1)
-    fit4 = np.zeros_like(b4)
-    fit2 = np.zeros_like(b2)
-    fit4[good] = np.linalg.solve(a4[good], b4[good][..., None])[..., 0]
-    fit2[good] = np.linalg.solve(a2[good], b2[good][..., None])[..., 0]
-    # RSS = yy - b·coef for least squares; the difference is the explained part
-    gain = np.einsum("ij,ij->i", fit4, b4) - np.einsum("ij,ij->i", fit2, b2)
-    stat = np.where(good, gain / noise_sd**2, np.nan)
-    out[np.flatnonzero(ok)] = stat
-    return out
+    if np.any(ok):
+        a4, b4 = xtx[ok], xty[ok]
+        a2, b2 = a4[:, :2, :2], b4[:, :2]
+        det4 = np.linalg.det(a4)
+        good = np.abs(det4) > 1e-10 * np.prod(np.abs(np.diagonal(a4, axis1=1, axis2=2)), axis=1)
+        fit4 = np.zeros_like(b4)
+        fit2 = np.zeros_like(b2)
+        fit4[good] = np.linalg.solve(a4[good], b4[good][..., None])[..., 0]
+        fit2[good] = np.linalg.solve(a2[good], b2[good][..., None])[..., 0]
+        # RSS = yy - b·coef for least squares; the difference is the explained part
+        gain = np.einsum("ij,ij->i", fit4, b4) - np.einsum("ij,ij->i", fit2, b2)
+        out[ok] = np.where(good, gain / noise_sd**2, np.nan)
+    return out[0] if single else out
 
 
 def _runs(mask):
@@ -199,8 +209,8 @@ def detect_bands(
     lams = np.geomspace(lam_min, lam_max, n_lam)
     threshold = -2.0 * np.log(local_alpha)  # χ²₂ survival is exp(-x/2)
     candidates = []
-    for lam in lams:
-        stat = local_sine_statistic(x, r, sigma, lam, 0.5 * window_cycles * lam)
+    stats = local_sine_statistic(x, r, sigma, lams, 0.5 * window_cycles * lams)
+    for lam, stat in zip(lams, stats):
         runs = _runs(np.nan_to_num(stat, nan=0.0) > threshold)
         merged = []
         for a, b in runs:  # a dip shorter than 1.5 wavelengths does not end a band

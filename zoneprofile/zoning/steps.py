@@ -22,11 +22,16 @@ Method
    step with free position and width, which gives the position (µm), the
    values on both sides, the change, the 10–90 % width and a position
    uncertainty.
+
+The local tests of all candidates of a round are fitted as one batch, the erf
+fit takes its forward differences in one pass, and repeated work between
+calls on one profile is shared (``reuse``); none of this changes a result
+(docs/methods/steps.md).
 """
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 from scipy.special import ndtr, ndtri, stdtr
@@ -95,7 +100,185 @@ def _window(x, k, lo_um, hi_um, blocked):
     return idx[idx < k], idx[idx >= k]
 
 
+def _ols_batch(design, y, mask):
+    """Least squares of many small windows at once (rows of a padded batch).
+
+    ``design`` is (W, M, P), ``y`` (W, M) and ``mask`` (W, M) marks the points
+    of each window. Returns ``(coef (W, P), rss (W,), inverse of XᵀX (W, P, P),
+    full_rank (W,))`` with the rank test of :func:`zoneprofile.zoning._local.ols`
+    (Hadamard ratio det/prod(diag) of XᵀX at least 1e-12); the coefficients of a
+    rank-deficient window come from a pseudo-inverse.
+    """
+    xm = design * mask[..., None]
+    xtx = np.einsum("wmp,wmq->wpq", xm, xm)
+    xty = np.einsum("wmp,wm->wp", xm, y)
+    diag = np.diagonal(xtx, axis1=1, axis2=2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        full = np.all(diag > 0, axis=1) & (np.linalg.det(xtx) / np.prod(diag, axis=1) >= 1e-12)
+    p = design.shape[2]
+    cov = np.full_like(xtx, np.nan)
+    coef = np.empty((design.shape[0], p))
+    if np.any(full):
+        cov[full] = np.linalg.inv(xtx[full])
+        coef[full] = np.einsum("wpq,wq->wp", cov[full], xty[full])
+    for w in np.flatnonzero(~full):
+        coef[w] = np.linalg.pinv(xm[w]) @ (y[w] * mask[w])
+    resid = (y - np.einsum("wmp,wp->wm", design, coef)) * mask
+    return coef, np.einsum("wm,wm->w", resid, resid), cov, full
+
+
+def _window_tests(x, y, gaps, skips_um, los, his, noise_sd):
+    """Jump tests in many windows at once.
+
+    Window ``w`` holds the points of ``[los[w], his[w]]`` (a run of consecutive
+    points: the bounds are already cut at accepted steps) on either side of
+    the gap ``gaps[w]`` (between points ``gaps[w]-1`` and ``gaps[w]``), less the
+    points closer than ``skips_um[w]`` to the middle of the gap. In each
+    window a constant and a jump at the gap (plus a slope shared by both sides
+    when the BIC asks for it) are fitted by least squares and compared with a
+    quadratic. Returns a dict of arrays (one entry per window); ``valid`` is
+    False where a side holds fewer than 2 points or the window fewer than 6.
+    """
+    j = np.asarray(gaps)
+    xb = 0.5 * (x[j - 1] + x[j])
+    i0 = np.searchsorted(x, los, side="left")
+    i1 = np.searchsorted(x, his, side="right")
+    skip = np.asarray(skips_um, dtype=float)
+    r1 = np.where(skip > 0, np.minimum(j, np.searchsorted(x, xb - skip, side="left")), j)
+    c0 = np.where(skip > 0, np.maximum(j, np.searchsorted(x, xb + skip, side="right")), j)
+    n_rim = np.maximum(r1 - i0, 0)
+    n_core = np.maximum(i1 - c0, 0)
+    valid = (n_rim >= 2) & (n_core >= 2) & (n_rim + n_core >= 6)
+    out = {"valid": valid}
+    w_ok = np.flatnonzero(valid)
+    if w_ok.size == 0:
+        return out
+    n_rim, n_core, i0, c0, xb, j = n_rim[w_ok], n_core[w_ok], i0[w_ok], c0[w_ok], xb[w_ok], j[w_ok]
+    m = n_rim + n_core
+    width = int(m.max())
+    pos = np.arange(width)[None, :]
+    mask = pos < m[:, None]
+    rim_side = pos < n_rim[:, None]
+    idx = np.where(rim_side, i0[:, None] + pos, c0[:, None] + pos - n_rim[:, None])
+    idx = np.where(mask, idx, 0)
+    t = np.where(mask, x[idx] - xb[:, None], 0.0)
+    yy = np.where(mask, y[idx], 0.0)
+    ones = mask.astype(float)
+    indicator = (rim_side & mask).astype(float)
+    # the slope (continuous zoning) enters only when it earns its place (BIC):
+    # a slope shared by both sides is nearly collinear with the jump and would
+    # otherwise blur every jump estimate
+    coef1, rss1, cov1, full1 = _ols_batch(np.stack([ones, indicator], axis=2), yy, mask)
+    coef_t, rss_t, cov_t, full_t = _ols_batch(np.stack([ones, t, indicator], axis=2), yy, mask)
+    var = np.maximum(rss_t / np.maximum(m - 3, 1), noise_sd**2)
+    use_t = ~full1 | (full_t & (rss1 - rss_t > var * np.log(m)))
+    valid[w_ok[use_t & ~full_t]] = False  # neither model can be solved
+    change = np.where(use_t, coef_t[:, -1], coef1[:, -1])
+    rss = np.where(use_t, rss_t, rss1)
+    n_par = np.where(use_t, 3, 2)
+    cov_jump = np.where(use_t, cov_t[:, -1, -1], cov1[:, -1, -1])
+    local = np.sqrt(rss / np.maximum(m - n_par, 1))
+    scatter = np.maximum(local, noise_sd)
+    se = scatter * np.sqrt(cov_jump)
+    # with the scatter at the known noise the jump is normal; above it, Student t
+    z = np.abs(change) / se
+    p_value = np.where(local > noise_sd, 2.0 * stdtr(np.maximum(m - n_par, 1), -z), 2.0 * ndtr(-z))
+    last = np.take_along_axis(t, (m - 1)[:, None], axis=1)[:, 0]
+    u = t / np.maximum(last - t[:, 0], 1e-9)[:, None]
+    _, rss0, _, _ = _ols_batch(np.stack([ones, u, u**2], axis=2), yy, mask)
+    for name, values in (("change", change), ("se", se), ("z", z), ("p", p_value),
+                         ("better_than_smooth", rss < rss0), ("scatter", scatter)):
+        full_values = np.full(valid.size, np.nan if values.dtype.kind == "f" else False, dtype=values.dtype)
+        full_values[w_ok] = values
+        out[name] = full_values
+    return out
+
+
+def _multi_scale_tests(x, y, ks, bounds_of, halves, noise_sd, blocked, p_max, min_change, spacing):
+    """For each candidate of ``ks``, the most significant passing test over the half-widths ``halves`` (or None).
+
+    At each half-width the gaps ``k-2 … k+2`` are tried (a gradational step
+    puts one or two points on its slope), leaving out up to two point
+    spacings on either side of the gap (the points on the slope); the most
+    significant jump stands for that half-width, and the quick screen against
+    a quadratic passes when any variant beats it. The refined erf step must
+    later beat a cubic on all points of its window (BIC). ``bounds_of[i]`` are
+    the limits of candidate ``ks[i]`` set by the steps already accepted. All
+    windows of all candidates are fitted in one batch.
+    """
+    results: list = [None] * len(ks)
+    if not ks:
+        return results
+    # every variant (candidate, half-width, gap, skip) in the order they are compared
+    n_c, n_h = len(ks), len(halves)
+    gaps = np.asarray(ks)[:, None] + np.arange(-2, 3)[None, :]  # (candidate, gap)
+    inside = (gaps >= 1) & (gaps < x.size)
+    gaps = np.clip(gaps, 1, x.size - 1)
+    xb = 0.5 * (x[gaps - 1] + x[gaps])
+    b_lo = np.array([bounds[0] for bounds in bounds_of], dtype=float)[:, None]
+    b_hi = np.array([bounds[1] for bounds in bounds_of], dtype=float)[:, None]
+    inside &= (b_lo < xb) & (xb < b_hi)
+    half = np.asarray(halves, dtype=float)[None, :, None]
+    los = np.maximum(xb[:, None, :] - half, b_lo[:, :, None])  # (candidate, half, gap)
+    his = np.minimum(xb[:, None, :] + half, b_hi[:, :, None])
+    shape = (n_c, n_h, 5, 3)
+    keep = np.broadcast_to(inside[:, None, :, None], shape).ravel()
+    cand = np.broadcast_to(np.arange(n_c)[:, None, None, None], shape).ravel()[keep]
+    h_of = np.broadcast_to(np.arange(n_h)[None, :, None, None], shape).ravel()[keep]
+    gaps = np.broadcast_to(gaps[:, None, :, None], shape).ravel()[keep]
+    skips = np.broadcast_to(np.array([0.0, 1.0 * spacing, 2.0 * spacing]), shape).ravel()[keep]
+    los = np.broadcast_to(los[..., None], shape).ravel()[keep]
+    his = np.broadcast_to(his[..., None], shape).ravel()[keep]
+    if cand.size == 0:
+        return results
+    general = np.zeros(n_c, dtype=bool)
+    if blocked:
+        # bounds are cut at accepted steps, so a window holds no blocked point;
+        # a point exactly on a blocked edge is the exception: such candidates
+        # are tested window by window, the point left out as it should be
+        hit = np.zeros(x.size, dtype=bool)
+        for lo_b, hi_b in blocked:
+            hit |= (x >= lo_b) & (x <= hi_b)
+        count = np.concatenate([[0], np.cumsum(hit)])
+        i0 = np.searchsorted(x, los, side="left")
+        i1 = np.searchsorted(x, his, side="right")
+        holed = count[i1] - count[np.minimum(i0, i1)] > 0
+        general[np.unique(cand[holed])] = True
+    res = _window_tests(x, y, gaps, skips, los, his, noise_sd)
+    # per (candidate, half-width): the first most significant variant, and
+    # whether any variant beats the quadratic
+    group = cand * n_h + h_of
+    valid = res["valid"]
+    z = np.where(valid, res["z"], -np.inf) if "z" in res else np.full(valid.size, -np.inf)
+    top = np.full(n_c * n_h, -np.inf)
+    np.maximum.at(top, group, z)
+    beaten = np.zeros(n_c * n_h, dtype=bool)
+    if "better_than_smooth" in res:
+        np.logical_or.at(beaten, group, valid & res["better_than_smooth"])
+    first = {}
+    for w in np.flatnonzero(valid & (z == top[group])):
+        first.setdefault(int(group[w]), w)
+    for c in range(n_c):
+        if general[c]:
+            results[c] = _multi_scale_test_general(x, y, ks[c], bounds_of[c], halves, noise_sd, blocked, p_max,
+                                                   min_change, spacing)
+            continue
+        passing = []
+        for h, half_um in enumerate(halves):
+            best = first.get(c * n_h + h)
+            if best is None:
+                continue
+            r = {"k": int(gaps[best]), "change": float(res["change"][best]), "se": float(res["se"][best]),
+                 "z": res["z"][best], "p": float(res["p"][best]), "better_than_smooth": bool(beaten[c * n_h + h]),
+                 "scatter": res["scatter"][best], "lo": los[best], "hi": his[best], "half": half_um}
+            if r["p"] <= p_max and abs(r["change"]) >= min_change and r["better_than_smooth"]:
+                passing.append(r)
+        results[c] = max(passing, key=lambda r: r["z"]) if passing else None
+    return results
+
+
 def _local_test_at(x, y, k, xb, bounds, half_um, noise_sd, blocked, skip_um):
+    """One jump test, point by point (windows with holes; reference for the batch)."""
     lo = max(xb - half_um, bounds[0])
     hi = min(xb + half_um, bounds[1])
     rim, core = _window(x, k, lo, hi, blocked)
@@ -110,9 +293,6 @@ def _local_test_at(x, y, k, xb, bounds, half_um, noise_sd, blocked, skip_um):
     m = idx.size
     indicator = (idx < k).astype(float)
     ones = np.ones_like(t)
-    # the slope (continuous zoning) enters only when it earns its place (BIC):
-    # a slope shared by both sides is nearly collinear with the jump and would
-    # otherwise blur every jump estimate
     coef, rss1, cov = ols(np.column_stack([ones, indicator]), yy)
     coef_t, rss_t, cov_t = ols(np.column_stack([ones, t, indicator]), yy)
     var = max(rss_t / max(m - 3, 1), noise_sd**2)
@@ -124,7 +304,6 @@ def _local_test_at(x, y, k, xb, bounds, half_um, noise_sd, blocked, skip_um):
     local = np.sqrt(rss1 / max(m - n_par, 1))
     s = max(local, noise_sd)
     se = s * np.sqrt(cov[-1, -1])
-    # with the scatter at the known noise the jump is normal; above it, Student t
     dof = max(m - n_par, 1) if local > noise_sd else np.inf
     u = t / max(float(np.ptp(t)), 1e-9)
     _, rss0, _ = ols(np.column_stack([ones, u, u**2]), yy)
@@ -134,48 +313,142 @@ def _local_test_at(x, y, k, xb, bounds, half_um, noise_sd, blocked, skip_um):
             "better_than_smooth": rss1 < rss0, "scatter": s, "lo": lo, "hi": hi}
 
 
-def _local_test(x, y, k, bounds, half_um, noise_sd, blocked):
-    """Best jump test at the gaps near candidate ``k`` in a window of ``±half_um``.
-
-    A gradational step puts one or two points on its slope; the test tries the
-    gaps ``k-2 … k+2`` and leaves out up to two point spacings on either side
-    of the gap (the points on the slope), and keeps the most significant.
-    """
-    spacing = median_spacing(x)
-    best = None
-    smooth_beaten = False
-    for j in range(max(k - 2, 1), min(k + 3, x.size)):
-        xb = 0.5 * (x[j - 1] + x[j])
-        if not bounds[0] < xb < bounds[1]:
-            continue
-        for skip in (0.0, 1.0 * spacing, 2.0 * spacing):
-            r = _local_test_at(x, y, j, xb, bounds, half_um, noise_sd, blocked, skip)
-            if r is None:
+def _multi_scale_test_general(x, y, k, bounds, halves, noise_sd, blocked, p_max, min_change, spacing):
+    """:func:`_multi_scale_tests` for one candidate, window by window (any window, holes included)."""
+    passing = []
+    for half_um in halves:
+        best, smooth_beaten = None, False
+        for j in range(max(k - 2, 1), min(k + 3, x.size)):
+            xb = 0.5 * (x[j - 1] + x[j])
+            if not bounds[0] < xb < bounds[1]:
                 continue
-            # quick screen against a quadratic; the refined erf step must
-            # later beat a cubic on all points of its window (BIC)
-            smooth_beaten |= bool(r["better_than_smooth"])
-            if best is None or r["z"] > best["z"]:
-                best = r
-    if best is not None:
+            for skip in (0.0, 1.0 * spacing, 2.0 * spacing):
+                r = _local_test_at(x, y, j, xb, bounds, half_um, noise_sd, blocked, skip)
+                if r is None:
+                    continue
+                smooth_beaten |= bool(r["better_than_smooth"])
+                if best is None or r["z"] > best["z"]:
+                    best = r
+        if best is None:
+            continue
         best["better_than_smooth"] = smooth_beaten
         best["half"] = half_um
-    return best
-
-
-def _multi_scale_test(x, y, k, bounds, halves, noise_sd, blocked, p_max, min_change):
-    """The most significant passing test over the window half-widths ``halves`` (or None)."""
-    passing = []
-    for half in halves:
-        r = _local_test(x, y, k, bounds, half, noise_sd, blocked)
-        if r is not None and r["p"] <= p_max and abs(r["change"]) >= min_change and r["better_than_smooth"]:
-            passing.append(r)
+        if best["p"] <= p_max and abs(best["change"]) >= min_change and best["better_than_smooth"]:
+            passing.append(best)
     return max(passing, key=lambda r: r["z"]) if passing else None
 
 
 def _erf_model(p, t):
     a, b, delta, x0, log_s = p
     return a + b * (t - x0) + delta * (1.0 - ndtr((t - x0) / np.exp(log_s)))
+
+
+#: relative step of the forward differences of the erf fit: √(machine epsilon)
+_DIFF_STEP = float(np.finfo(float).eps ** 0.5)
+
+
+def _erf_jacobian(t, yy, lower, upper):
+    """Forward-difference Jacobian of the erf-step residuals.
+
+    Parameter ``i`` moves by ``h = √ε · max(1, |pᵢ|)`` (sign of ``pᵢ``, zero
+    counting as positive); a move that would leave the bounds is reversed when
+    the reverse fits, else it goes to the farther bound. These are the steps
+    of ``scipy.optimize.least_squares``' own ``'2-point'`` differences (Nocedal
+    & Wright 2006, Numerical Optimization, §8.1), and every residual is
+    computed with the same operations as :func:`_erf_model`, so the fit
+    follows the same path as with the built-in differences; the terms that a
+    move leaves unchanged are computed once instead of once per parameter.
+    """
+    return _erf_problem(t, yy, lower, upper)[1]
+
+
+def _erf_problem(t, yy, lower, upper):
+    """Residuals and Jacobian (see :func:`_erf_jacobian`) of the erf step, sharing work.
+
+    The residuals at the point where the Jacobian is asked for were computed
+    just before (the solver evaluates a point, then its Jacobian when it
+    accepts it); their terms are kept and not computed again.
+    """
+    lower = [float(v) for v in lower]
+    upper = [float(v) for v in upper]
+    last = {}
+
+    def terms(p):
+        a, b, delta, x0, log_s = p
+        d = t - x0
+        e = 1.0 - ndtr(d / np.exp(log_s))
+        slope = b * d
+        jump = delta * e
+        base = a + slope
+        return d, e, slope, jump, base, base + jump - yy  # the operations of _erf_model, then - y
+
+    def residuals(p):
+        last.clear()
+        last[p.tobytes()] = kept = terms(p)
+        return kept[5]
+
+    def jacobian(p):
+        h = []
+        for v, lo, hi in zip(p.tolist(), lower, upper):
+            step = _DIFF_STEP * (1.0 if v >= 0 else -1.0) * max(1.0, abs(v))
+            below, above = v - lo, hi - v
+            if abs(step) <= max(below, above):
+                if not lo <= v + step <= hi:
+                    step = -step
+            else:
+                step = above if above >= below else -below
+            h.append(step)
+        a, b, delta, x0, log_s = p
+        ha, hb, hd, hx, hs = h
+        kept = last.get(p.tobytes())
+        d, e, slope, jump, base, f0 = kept if kept is not None else terms(p)
+        # each moved residual is summed in the order of _erf_model: (a + slope) + jump - y
+        jac_t = np.empty((5, t.size))
+        jac_t[0] = (a + ha) + slope + jump - yy - f0
+        jac_t[1] = a + (b + hb) * d + jump - yy - f0
+        jac_t[2] = base + (delta + hd) * e - yy - f0
+        d_x = t - (x0 + hx)
+        jac_t[3] = a + b * d_x + delta * (1.0 - ndtr(d_x / np.exp(log_s))) - yy - f0
+        jac_t[4] = base + delta * (1.0 - ndtr(d / np.exp(log_s + hs))) - yy - f0
+        jac_t /= np.array([(a + ha) - a, (b + hb) - b, (delta + hd) - delta, (x0 + hx) - x0,
+                           (log_s + hs) - log_s])[:, None]
+        return jac_t.T
+
+    return residuals, jacobian
+
+
+def _trust_region_fit(residuals, jacobian, p0, lower, upper, x_scale):
+    """Bounded nonlinear least squares by the trust-region reflective method.
+
+    The method of ``scipy.optimize.least_squares(method="trf")`` (Branch,
+    Coleman & Li 1999, SIAM J. Sci. Comput. 21:1) with its default tolerances
+    and a linear loss, called without the wrappers that ``least_squares`` puts
+    around every evaluation (they cost about a sixth of a small fit). The
+    result is the same, bit for bit (tests/test_zoning_steps.py checks it);
+    where scipy's private solver is not available, ``least_squares`` itself
+    is called.
+    """
+    lower = np.asarray(lower, dtype=float)
+    upper = np.asarray(upper, dtype=float)
+    x_scale = np.asarray(x_scale, dtype=float)
+    from scipy.optimize import least_squares  # imported here: slow to import, most commands never fit
+
+    try:
+        from scipy.optimize._lsq.common import make_strictly_feasible
+        from scipy.optimize._lsq.trf import trf
+    except ImportError:  # pragma: no cover - another layout of scipy
+        trf = None
+    if trf is not None:
+        p = make_strictly_feasible(np.atleast_1d(p0).astype(float), lower, upper)
+        f0 = np.atleast_1d(residuals(p))
+        if not np.all(np.isfinite(f0)):
+            raise ValueError("Residuals are not finite in the initial point.")
+        try:
+            return trf(residuals, lambda q, *_: jacobian(q), p, f0, jacobian(p), lower, upper, 1e-8, 1e-8, 1e-8,
+                       None, x_scale, None, "exact", {}, 0)
+        except TypeError:  # pragma: no cover - another signature of scipy's internal solver
+            pass
+    return least_squares(residuals, p0, jac=jacobian, bounds=(lower, upper), x_scale=x_scale)
 
 
 def fit_step(x, y, k, *, lo_um, hi_um, noise_sd, max_width_um, blocked=(), sharp=False):
@@ -193,8 +466,6 @@ def fit_step(x, y, k, *, lo_um, hi_um, noise_sd, max_width_um, blocked=(), sharp
     spacing the position is only known within the gap, and the uncertainty is
     at least ``gap/√12`` (uniform within the gap).
     """
-    from scipy.optimize import least_squares
-
     rim, core = _window(x, k, lo_um, hi_um, blocked)
     if rim.size < 2 or core.size < 2:
         return None
@@ -212,15 +483,19 @@ def fit_step(x, y, k, *, lo_um, hi_um, noise_sd, max_width_um, blocked=(), sharp
         s_max = max(0.1 * gap, 2 * s_min)
     core_level = float(np.mean(y[core[:3]]))
     rim_level = float(np.mean(y[rim[-3:]]))
+    lower = np.array([-np.inf, -np.inf, -np.inf, x0_lo, np.log(s_min)])
+    upper = np.array([np.inf, np.inf, np.inf, x0_hi, np.log(s_max)])
+    residuals, jacobian = _erf_problem(t, yy, lower, upper)
     best = None
     for s0 in ((0.05 * gap,) if sharp else (0.25 * gap, gap, 2.5 * gap)):
         s0 = float(np.clip(s0, s_min * 1.01, s_max * 0.99))
         p0 = [core_level, 0.0, rim_level - core_level, xb, np.log(s0)]
-        res = least_squares(
-            lambda p: _erf_model(p, t) - yy,
+        res = _trust_region_fit(
+            residuals,
+            jacobian,
             p0,
-            bounds=([-np.inf, -np.inf, -np.inf, x0_lo, np.log(s_min)],
-                    [np.inf, np.inf, np.inf, x0_hi, np.log(s_max)]),
+            lower,
+            upper,
             x_scale=[max(abs(core_level), 1.0), 0.1, max(abs(rim_level - core_level), 1.0), gap, 1.0],
         )
         if best is None or res.cost < best.cost:
@@ -280,6 +555,21 @@ def fit_step(x, y, k, *, lo_um, hi_um, noise_sd, max_width_um, blocked=(), sharp
     )
 
 
+def _fit_step_reused(reuse, x, y, k, **kwargs):
+    """:func:`fit_step`, reusing a fit already made with the same settings on this profile.
+
+    Fits are deterministic, so a repeated fit (the final refinement often
+    repeats the accepted fit; the short-and-wide pass repeats fits of the
+    wide pass) is taken from ``reuse``; each caller gets its own copy.
+    """
+    key = ("fit", int(k), tuple(sorted((name, tuple(map(tuple, v)) if name == "blocked" else v)
+                                       for name, v in kwargs.items())))
+    if key not in reuse:
+        reuse[key] = fit_step(x, y, k, **kwargs)
+    step = reuse[key]
+    return None if step is None else replace(step, extra=dict(step.extra))
+
+
 def _agrees(step, test):
     """The erf refinement must tell the same story as the local jump test."""
     same_sign = np.sign(step.change) == np.sign(test["change"])
@@ -333,6 +623,7 @@ def detect_steps(
     penalty_factor=1.0,
     alpha=0.01,
     windows="both",
+    reuse=None,
 ) -> list[Step]:
     """Find the steps of a profile.
 
@@ -363,6 +654,11 @@ def detect_steps(
         spacings)``, for steps close together) and in the wide one; ``"wide"``
         only in the wide one (does not split oscillations; used to find
         oscillatory bands).
+    reuse : dict, optional
+        Work shared between calls on the same profile (the same distances,
+        values and noise): candidate change points and erf fits are made once.
+        Pass the same empty dict to every call on one profile; a dict
+        already used on another profile is refused (ValueError).
 
     Returns
     -------
@@ -385,35 +681,42 @@ def detect_steps(
     else:  # a short window as well, for steps closer together than the wide window
         halves = (min(max(6.0 * half / 15.0, 4.0 * spacing), half), half)
     p_max = p_max / len(halves)
-    candidates = set(candidate_change_points(y, sigma, penalty_factor=penalty_factor))
+    if reuse is None:
+        reuse = {}
+    profile = (x.tobytes(), y.tobytes(), sigma)
+    if reuse.setdefault("profile", profile) != profile:
+        raise ValueError("detect_steps: `reuse` holds the work of another profile; pass a new dict")
+    if ("candidates", penalty_factor) not in reuse:
+        reuse[("candidates", penalty_factor)] = candidate_change_points(y, sigma, penalty_factor=penalty_factor)
+    candidates = set(reuse[("candidates", penalty_factor)])
     accepted: list[Step] = []
     blocked: list[tuple] = []
     rejected: set[int] = set()
     cache: dict[int, dict | None] = {}
     while True:
-        tests = []
+        live = []
         for k in sorted(candidates - rejected):
             xb = 0.5 * (x[k - 1] + x[k])
             if any(a <= xb <= b for a, b in blocked):
                 rejected.add(k)
-                continue
-            if k not in cache:
-                cache[k] = _multi_scale_test(x, y, k, _bounds_for(xb, blocked), halves, sigma, blocked,
-                                             p_max, min_change)
-            r = cache[k]
-            if r is not None:
-                tests.append(dict(r, candidate=k))
+            else:
+                live.append(k)
+        todo = [k for k in live if k not in cache]
+        bounds_of = [_bounds_for(0.5 * (x[k - 1] + x[k]), blocked) for k in todo]
+        cache.update(zip(todo, _multi_scale_tests(x, y, todo, bounds_of, halves, sigma, blocked, p_max, min_change,
+                                                  spacing)))
+        tests = [dict(cache[k], candidate=k) for k in live if cache[k] is not None]
         if not tests:
             break
         best = max(tests, key=lambda r: r["z"])
         k = best["k"]
         rejected.add(best["candidate"])
-        step = fit_step(x, y, k, lo_um=best["lo"], hi_um=best["hi"], noise_sd=sigma,
-                        max_width_um=max_width_um, blocked=blocked)
+        step = _fit_step_reused(reuse, x, y, k, lo_um=best["lo"], hi_um=best["hi"], noise_sd=sigma,
+                                max_width_um=max_width_um, blocked=blocked)
         rejected.add(k)
         if step is not None and (not _agrees(step, best) or not step.plausible):
-            step = fit_step(x, y, k, lo_um=best["lo"], hi_um=best["hi"], noise_sd=sigma,
-                            max_width_um=max_width_um, blocked=blocked, sharp=True)
+            step = _fit_step_reused(reuse, x, y, k, lo_um=best["lo"], hi_um=best["hi"], noise_sd=sigma,
+                                    max_width_um=max_width_um, blocked=blocked, sharp=True)
         if (step is None or step.width_um > max_width_um or abs(step.change) < min_change
                 or not step.beats_smooth):
             continue
@@ -436,7 +739,8 @@ def detect_steps(
         lo, hi = max(lo, step.position_um - step_half), min(hi, step.position_um + step_half)
         k = int(np.searchsorted(x, step.position_um))
         k = min(max(k, 1), n - 1)
-        again = fit_step(x, y, k, lo_um=lo, hi_um=hi, noise_sd=sigma, max_width_um=max_width_um, blocked=others)
+        again = _fit_step_reused(reuse, x, y, k, lo_um=lo, hi_um=hi, noise_sd=sigma, max_width_um=max_width_um,
+                                 blocked=others)
         # the refined jump must still be significant and large enough; if the
         # refit with the final neighbours fails, the fit that was accepted stands
         for option in (again, step):

@@ -79,3 +79,18 @@ def test_outputs_get_the_usual_file_mode(tmp_path):
     os.umask(mask)
     p = write_json(tmp_path / "m.json", {})
     assert (p.stat().st_mode & 0o777) == (0o666 & ~mask)
+
+
+def test_readable_json_round_trips_and_keeps_value_lists_on_one_line():
+    import math
+
+    from zoneprofile._output import dumps_readable, to_jsonable
+
+    doc = to_jsonable({"curve": np.linspace(0, 1, 300), "time_days": {"best": 1.5, "median": math.nan},
+                       "nested": [{"a": [1, 2]}, [3, "x"], {}], "empty": [], "text": "ü <&> \"q\""})
+    text = dumps_readable(doc)
+    assert json.loads(text) == doc  # the standard library reads back exactly what was written
+    lines = text.splitlines()
+    assert sum(line.strip().startswith('"curve": [') for line in lines) == 1  # 300 values, one line
+    assert '"time_days": {"best": 1.5, "median": null}' in text
+    assert len(lines) < 20

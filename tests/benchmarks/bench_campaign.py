@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import shutil
 import subprocess
 import sys
@@ -93,6 +94,8 @@ def main(argv=None):
 
     eff = t1 / (2 * t2)
     print()
+    print(f"load average at the end (1, 5, 15 min): {', '.join(f'{v:.2f}' for v in os.getloadavg())} "
+          f"on {os.cpu_count()} cores")
     print(f"{'measure':<44}{'value':>12}{'goal':>12}")
     print(f"{'T1, 1 worker, end to end (s)':<44}{t1:>12.1f}{'':>12}")
     print(f"{'T2, 2 workers, end to end (s)':<44}{t2:>12.1f}{'<= 60':>12}")

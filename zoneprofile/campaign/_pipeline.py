@@ -256,9 +256,14 @@ def process_crystal(task: dict) -> dict:
         The crystal record; ``error`` is None or one line naming the failing
         stage and the reason.
     """
+    from zoneprofile.diffusion._blas import single_thread
+
     local_task, scratch = _materialise(task)
     try:
-        record, transient = _process(local_task)
+        # one BLAS thread per crystal: the matrices are small, crystals run in parallel
+        # processes, and a threaded BLAS beside another worker only spins and waits
+        with single_thread():
+            record, transient = _process(local_task)
     finally:
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)

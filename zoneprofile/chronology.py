@@ -332,7 +332,11 @@ def _boundary_rows(records):
             if med is None:
                 continue  # not dated
             if not b.get("resolved", True):
-                bound = hi if hi is not None else (td.get("best") or med)
+                if "upper_bound" in td and td["upper_bound"] is None:
+                    unresolved.append({**row, "upper_bound_days": None,
+                                       "note": "the data do not bound the time; left out of the statistics"})
+                    continue
+                bound = td.get("upper_bound") or (hi if hi is not None else (td.get("best") or med))
                 unresolved.append({**row, "upper_bound_days": float(bound)})
                 continue
             if lo is None or hi is None or not (med > 0 and lo > 0 and hi > 0):

@@ -128,6 +128,8 @@ class FitResult:
                 f"68%: {_fmt_days(t['p16'])} – {_fmt_days(t['p84'])}; "
                 f"95%: {_fmt_days(t['p2_5'])} – {_fmt_days(t['p97_5'])})"
             )
+        elif t.get("upper_bound") is None:
+            lines.append("  NOT RESOLVED: the data do not bound the time (no time for this element)")
         else:
             lines.append(f"  NOT RESOLVED: time < {_fmt_days(t.get('upper_bound'))} (upper bound only)")
         lines.append(f"  chi² = {self.chi2:.4g}, reduced chi² = {self.reduced_chi2:.3g}, {self.n_points} points")
@@ -275,9 +277,13 @@ def propagate(ctx) -> FitResult:
     # trust in the tails); when the best fit sits on the lower bound of D·t the refits
     # are used as they are (a one-sided distribution: only an upper bound)
     spread = float(np.std(log_noise, ddof=1)) if log_noise.size > 2 else 0.0
+    log_lo, log_hi = ctx["log_bounds"]
+    # at the upper bound of D·t (a profile relaxed to equilibrium fits best) lmfit's standard
+    # error is not a standard error; nor is one wider than the whole range searched
+    at_ceiling = best[0] >= log_hi - 0.1
     stderr = ctx["lmfit"].params["log10_dt_m2"].stderr
-    sd_noise = max(spread, float(stderr) if stderr is not None and np.isfinite(stderr) else 0.0)
-    log_lo = ctx["log_bounds"][0]
+    usable = stderr is not None and np.isfinite(stderr) and stderr < log_hi - log_lo and not at_ceiling
+    sd_noise = max(spread, float(stderr) if usable else 0.0)
     at_floor = best[0] <= log_lo + 0.1 or np.percentile(log_noise, 2.5) <= log_lo + 0.1
     z_noise = rng.standard_normal(n_draws)
     if at_floor and log_noise.size > 1:
@@ -297,7 +303,8 @@ def propagate(ctx) -> FitResult:
     for name, sd in (getattr(law, "parameter_sd", {}) or {}).items():
         if sd and np.isfinite(sd) and sd > 0:
             perturb[name] = rng.normal(0.0, float(sd), n_draws)
-    log_tau = best[0] + g + eps  # m², D_ref(T_k)·t
+    # m², D_ref(T_k)·t; draws stay inside the range of D·t the fit searched
+    log_tau = np.clip(best[0] + g + eps, log_lo, log_hi)
 
     # obliquity
     obl = None
@@ -359,7 +366,8 @@ def propagate(ctx) -> FitResult:
     step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
     # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
     dt_low_um2 = 10.0 ** (best[0] + float(np.percentile(eps, 2.5)) + 12.0)
-    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected)
+    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected
+                    and not at_ceiling)
     if not step_rejected:
         warnings.append(
             f"an undiffused step seen through the spot fits the data about as well (Δχ² = {floor_delta:.2g} "
@@ -368,17 +376,27 @@ def propagate(ctx) -> FitResult:
     if not resolved:
         up = ctx.get("profile_upper_log10_dt")
         up = up() if callable(up) else up
-        if up is not None and path is None:
+        if at_ceiling or (up is not None and up >= log_hi - 0.05):
+            # nothing bounds the time: an equilibrated profile fits as well as any (for a
+            # plagioclase trace element the equilibrium profile keeps a step where An steps)
+            td["upper_bound"] = None
+            warnings.append(
+                "the data do not bound the time: a profile relaxed to equilibrium fits as well as a sharp "
+                "one (for a trace element in plagioclase the equilibrium profile keeps a step where An "
+                "steps); this boundary gives no time for this element"
+            )
+        elif up is not None and path is None:
             # profile-likelihood bound on D·t (95 %), spread by temperature (and obliquity)
             ub_draws = 10.0 ** (up + g) * factor / law.d_m2_s(t_draw, perturb=perturb or None, **comp)
             td["upper_bound"] = float(np.percentile(ub_draws / SECONDS_PER_DAY, 97.5))
         else:
             td["upper_bound"] = td["p97_5"]
-        warnings.append(
-            f"the relaxed width (√(2·D·t) = {math.sqrt(2 * dt_um2):.2g} µm) is not larger than the "
-            f"resolution (spot and point spacing, {math.sqrt(res_var):.2g} µm sd) with 95 % confidence: the "
-            f"time is an upper bound only (< {td['upper_bound']:.3g} days)"
-        )
+        if td["upper_bound"] is not None:
+            warnings.append(
+                f"the relaxed width (√(2·D·t) = {math.sqrt(2 * dt_um2):.2g} µm) is not larger than the "
+                f"resolution (spot and point spacing, {math.sqrt(res_var):.2g} µm sd) with 95 % confidence: the "
+                f"time is an upper bound only (< {td['upper_bound']:.3g} days)"
+            )
     else:
         td["upper_bound"] = None
 

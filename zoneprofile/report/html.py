@@ -196,10 +196,12 @@ def _chronology_section(population, pop_figs) -> str:
                              "range of medians", "DKW half-width"], srows, numeric=(1, 2, 3, 6)))
     unres = population.get("unresolved") or []
     if unres:
-        parts.append("<h4>Boundaries with an upper bound only</h4>")
-        parts.append(_table(["sample", "crystal", "element", "position", "upper bound"],
+        parts.append("<h4>Boundaries not dated: an upper bound only, or no bound</h4>")
+        parts.append(_table(["sample", "crystal", "element", "position", "upper bound", "note"],
                             [[_e(u.get("sample")), _e(u.get("crystal")), _e(u.get("element")),
-                              _e(_fmt_um(u.get("position_um"))), _e(format_days(u.get("upper_bound_days")))]
+                              _e(_fmt_um(u.get("position_um"))),
+                              _e(format_days(u["upper_bound_days"]) if u.get("upper_bound_days") else "none"),
+                              _e(u.get("note") or "")]
                              for u in unres]))
     if not population.get("elements"):
         parts.append("<p>No dated boundary: nothing to summarise.</p>")

@@ -21,6 +21,14 @@ Prints, measured side by side in one run:
       evaluation (no decomposition) vs eigendecomposition, build + refit;
    c. whole fits of An-coupled Mg boundaries tied to an An step (the demo
       campaign's kind), per boundary, against the 0.12 s budget.
+4. The olivine Fe–Mg fit (D depends on X_Fe: implicit solver, no projection),
+   on 6 seeded profiles: the integrations one fit asks for — the residual
+   with its four forward-difference neighbours, and the 60 curves of the
+   figure band — integrated side by side with the default steps (24 from
+   0.03·τ) vs one at a time with the earlier steps (60 from 1e-4·τ), the way
+   the fit evaluated them before; and the whole fit per boundary. Goal: >= 3x
+   (the replay of 14 olivine fits against the earlier code is in
+   docs/performance-fit.md).
 """
 
 from __future__ import annotations
@@ -297,10 +305,82 @@ def bench_refits():
     return np.median(per)
 
 
+def bench_olivine():
+    from zoneprofile.diffusion import fit_boundary, synthetic_boundary_profile
+    from zoneprofile.diffusion._problem import NonlinearModel, Problem
+    from zoneprofile.diffusion.fitting import _build_grid
+    from zoneprofile.diffusion.laws import default_law
+    from zoneprofile.diffusion.solver import evolve_nonlinear
+
+    print("[4] olivine Fe-Mg (implicit solver): one fit's integrations and whole fits")
+    law = default_law("FeMg", "olivine")
+    ours_t, old_t, fits, worst = [], [], [], 0.0
+    for seed in range(6):
+        rim = "open" if seed % 2 == 0 else "closed"
+        days = (10.0, 30.0, 100.0)[seed % 3]
+        d, _ = synthetic_boundary_profile(seed=seed, element="FeMg", mineral="olivine", temperature_c=1170.0,
+                                          time_days=days, boundary_um=50.0, outer=80.0, inner=88.0, an_outer=None,
+                                          an_inner=None, noise_sd=0.3, fo2_pa=1e-6, beam_um=2.0, rim=rim)
+        x, y = d["distance_um"], d["value"]
+        grid = _build_grid(x, True, "planar", None, 2.0, "gaussian", 400)
+        problem = Problem(element="FeMg", mineral="olivine", law=law, grid=grid, x_um=x, y=y, sigma=None,
+                          beam_um=2.0, beam_shape="gaussian", rim=rim, value_names=("fo_outer", "fo_inner"),
+                          nonlinear=True, law_kwargs={"fo2_pa": 1e-6}, reference={"x_fe": 0.16})
+        model = NonlinearModel(problem, 1170.0)
+        best = np.array([np.log10(float(law.d_m2_s(1170.0, x_fe=0.16, fo2_pa=1e-6)) * days * 86400.0), 50.0,
+                         80.0, 88.0])
+        rng = np.random.default_rng(seed)
+        band = best + rng.normal(0.0, [0.1, 0.5, 0.1, 0.1], (60, 4))
+        free = np.arange(4)
+        lower, upper = best - [3.0, 10.0, 20.0, 20.0], best + [3.0, 10.0, 10.0, 10.0]
+
+        def ours():
+            for _ in range(8):  # a fit's trust-region steps: residual + Jacobian, paired
+                model.jacobian_fd(best, free, y, np.ones_like(y), lower, upper, with_residual=True)
+            return model.cells_many(band)
+
+        def old_way():
+            def one(th):
+                c0 = th[2:] @ model.initial.basis(grid, th[1])
+                return evolve_nonlinear(grid, c0, 10.0 ** th[0] * 1e12, model.d_rel, rim=rim, rim_value=th[2],
+                                        n_steps=60, first_fraction=1e-4, startup_steps=4)
+            for _ in range(8):
+                for j in range(5):
+                    th = best.copy()
+                    if j < 4:
+                        th[j] += 1e-7
+                    one(th)
+            return np.array([one(th) for th in band])
+
+        a, b = [], []
+        for _ in range(2):  # interleaved, best of two
+            t = time.perf_counter()
+            new = ours()
+            a.append(time.perf_counter() - t)
+            t = time.perf_counter()
+            ref = old_way()
+            b.append(time.perf_counter() - t)
+        ours_t.append(min(a))
+        old_t.append(min(b))
+        worst = max(worst, float(np.max(np.abs(new - ref))))
+        t = time.perf_counter()
+        fit_boundary(x, y, element="FeMg", mineral="olivine", temperature_c=1170.0, fo2_pa=1e-6, beam_um=2.0,
+                     rim=rim, draws=1000, seed=seed)
+        fits.append(time.perf_counter() - t)
+    ratio = sum(old_t) / sum(ours_t)
+    print(f"    a. 8 residual+Jacobian evaluations and 60 band curves, 6 profiles: side by side, default steps "
+          f"{sum(ours_t):.2f} s vs one at a time, earlier steps {sum(old_t):.2f} s -> ratio {ratio:5.2f} x "
+          f"(goal >= 3 x); largest difference of the band curves {worst:.1e} Fo (the two step sequences)")
+    print(f"    b. whole olivine fit, 1000 draws: median {np.median(fits):.3f} s per boundary "
+          f"(min {min(fits):.3f}, max {max(fits):.3f})")
+    return ratio
+
+
 def test_benchmark():  # pragma: no cover - run by hand
     bench_evaluation()
     bench_process()
     bench_refits()
+    bench_olivine()
 
 
 if __name__ == "__main__":
@@ -308,3 +388,4 @@ if __name__ == "__main__":
     bench_evaluation()
     bench_process()
     bench_refits()
+    bench_olivine()

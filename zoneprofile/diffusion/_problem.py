@@ -267,7 +267,16 @@ class LinearModel:
 
 
 class NonlinearModel:
-    """Implicit stepping for D depending on the diffusing quantity (Fo in olivine)."""
+    """Implicit stepping for D depending on the diffusing quantity (Fo in olivine).
+
+    The solution is not linear in the values, so there is no variable
+    projection here; what makes the fit affordable is that several parameter
+    sets are integrated side by side (:meth:`cells_many`, one stacked
+    tridiagonal solve per Picard iteration, see
+    :func:`~zoneprofile.diffusion.solver.evolve_nonlinear`): the finite-difference
+    Jacobian of a fit (:meth:`jacobian_fd`) and the band of model curves cost
+    about what two or three single evaluations cost.
+    """
 
     def __init__(self, problem: Problem, temperature_c: float):
         p = problem
@@ -293,5 +302,80 @@ class NonlinearModel:
         rim = float(values[0]) if self.problem.rim == "open" else None
         return evolve_nonlinear(self.problem.grid, c0, tau, self.d_rel, rim=self.problem.rim, rim_value=rim), c0
 
+    def cells_many(self, thetas):
+        """Cell values for several parameter sets, shape (R, N), integrated side by side.
+
+        Each row is what :meth:`cells` gives for it (the same arithmetic).
+        """
+        thetas = np.atleast_2d(np.asarray(thetas, float))
+        grid = self.problem.grid
+        c0 = np.array([th[2:] @ self.initial.basis(grid, th[1]) for th in thetas])  # (R, N)
+        # one scalar power per row, as in :meth:`cells` (numpy's array power may differ in the last bit)
+        tau = np.array([10.0 ** th[0] * UM2_PER_M2 for th in thetas])
+        rim = thetas[:, 2].copy() if self.problem.rim == "open" else None
+        return evolve_nonlinear(grid, c0.T, tau, self.d_rel, rim=self.problem.rim, rim_value=rim).T
+
     def predict(self, theta):
         return self._B @ self.cells(theta)[0]
+
+    def predict_many(self, thetas):
+        """Predictions at the data positions for several parameter sets, shape (R, n_points)."""
+        # one product per row, as :meth:`predict` does (a matrix-matrix product sums in another
+        # order, and forward differences magnify a 1e-14 difference to ~1e-6)
+        return np.array([self._B @ c for c in self.cells_many(thetas)])
+
+    def jacobian_fd(self, theta, free, y, weights, lower, upper, f0=None, with_residual=False):
+        """Forward-difference Jacobian of the weighted residual ``(predict − y)·weights``.
+
+        The steps are those of :func:`scipy.optimize.least_squares` with
+        ``jac='2-point'`` (relative step √ε·max(1, |p|), reversed or shortened
+        at a bound), so a fit given this Jacobian takes the same path; the
+        perturbed parameter sets (and the base point unless ``f0``, the
+        residual there, is given) are integrated side by side. ``free``:
+        indices of the varying parameters, ``lower``/``upper`` their bounds.
+        Returns the Jacobian ``(n_points, len(free))``, and the residual at
+        ``theta`` beside it when ``with_residual``.
+        """
+        theta = np.asarray(theta, float)
+        free = np.asarray(free, int)
+        x0 = theta[free]
+        lb = np.broadcast_to(np.asarray(lower, float), x0.shape)
+        ub = np.broadcast_to(np.asarray(upper, float), x0.shape)
+        h = _forward_steps(x0, lb, ub)
+        base = f0 is None or with_residual
+        sets = np.tile(theta, (free.size + base, 1))
+        for j, i in enumerate(free):
+            sets[j, i] = x0[j] + h[j]
+        res = (self.predict_many(sets) - y) * weights
+        if base:
+            f0 = res[-1]
+        # column by column into a transposed array, the memory layout scipy's own differences
+        # have (the linear algebra of the trust-region step then rounds the same way)
+        jac_t = np.empty((free.size, y.size))
+        for j, i in enumerate(free):
+            jac_t[j] = (res[j] - f0) / (sets[j, i] - x0[j])
+        return (jac_t.T, f0) if with_residual else jac_t.T
+
+
+def _forward_steps(x0, lb, ub):
+    """Forward-difference steps as :func:`scipy.optimize.least_squares` takes them (``'2-point'``).
+
+    √ε·sign(x)·max(1, |x|) (sign +1 at 0), reversed when it would leave the
+    bounds and fits on the other side, else the distance to the farther bound.
+    """
+    x0 = np.asarray(x0, float)
+    sign = (x0 >= 0).astype(float) * 2 - 1
+    h = np.finfo(float).eps ** 0.5 * sign * np.maximum(1.0, np.abs(x0))
+    if np.all((lb == -np.inf) & (ub == np.inf)):
+        return h
+    lower_dist, upper_dist = x0 - lb, ub - x0
+    x = x0 + h
+    violated = (x < lb) | (x > ub)
+    fitting = np.abs(h) <= np.maximum(lower_dist, upper_dist)
+    adj = h.copy()
+    adj[violated & fitting] *= -1
+    forward = (upper_dist >= lower_dist) & ~fitting
+    adj[forward] = upper_dist[forward]
+    backward = (upper_dist < lower_dist) & ~fitting
+    adj[backward] = -lower_dist[backward]
+    return adj

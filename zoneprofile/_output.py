@@ -117,9 +117,9 @@ def dumps_readable(obj, indent: int = 2) -> str:
 
     Reads like ``json.dumps(obj, indent=2)`` but keeps a 300-point curve, a
     list of draws or a small object of plain values (``{best, median, ...}``)
-    on one line instead of one value per line; those lines are
-    written by the C encoder, so a large results file is written several
-    times faster. ``obj`` must already be JSON-plain (see :func:`to_jsonable`).
+    on one line instead of one value per line (a campaign's results.json is
+    about a third smaller and a curve reads as one line). ``obj`` must
+    already be JSON-plain (see :func:`to_jsonable`).
     """
     one = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
 

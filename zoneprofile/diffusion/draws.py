@@ -18,7 +18,16 @@ import hashlib
 
 import numpy as np
 
-__all__ = ["sample_seed", "shared_normals"]
+__all__ = ["sample_seed", "shared_normals", "section_obliquity_deg", "DEFAULT_OBLIQUITY_SD_DEG", "MAX_OBLIQUITY_DEG"]
+
+#: Default spread of the unknown angle between a traverse and the normal of the
+#: boundary plane when no map measures it: the analyst aims each traverse
+#: normal to the zoning seen in the section, but the boundary plane is cut at
+#: an angle it cannot see. Half-normal with this sd, cut at MAX_OBLIQUITY_DEG
+#: (common practice: aim for sections normal to zoning; the figures are the
+#: project's stated default, switchable off, not a published distribution).
+DEFAULT_OBLIQUITY_SD_DEG = 20.0
+MAX_OBLIQUITY_DEG = 60.0
 
 
 def sample_seed(campaign_seed: int, sample: str) -> int:
@@ -38,3 +47,16 @@ def shared_normals(seed: int, n: int, quantity: str = "temperature") -> np.ndarr
     key = int.from_bytes(hashlib.sha256(quantity.encode("utf-8")).digest()[:4], "big")
     rng = np.random.default_rng([int(seed) & (2**63 - 1), key])
     return rng.standard_normal(int(n))
+
+
+def section_obliquity_deg(seed: int, n: int, *, sd_deg: float = DEFAULT_OBLIQUITY_SD_DEG,
+                          max_deg: float = MAX_OBLIQUITY_DEG) -> np.ndarray:
+    """``n`` draws of the unknown obliquity (degrees) of one traverse, shared by all its boundaries.
+
+    A boundary cut at angle θ to its normal looks wider by 1/cos θ, so a time
+    from the apparent profile is too long by 1/cos² θ; multiply a drawn time
+    by ``cos(radians(θ))**2`` to correct it. ``seed`` is the crystal's (one
+    traverse, one angle per draw index, whatever the element or boundary).
+    """
+    z = np.abs(shared_normals(seed, n, "section obliquity"))
+    return np.minimum(z * float(sd_deg), float(max_deg))

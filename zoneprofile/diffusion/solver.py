@@ -35,8 +35,9 @@ Two solvers share one discretisation.
     .. math:: e^{-τK} v ≈ a_0 v + \operatorname{Re} \sum_{k=1}^{7} c_k\,(τK + p_k I)^{-1} v,
 
     seven complex tridiagonal solves (degree 14; uniform error below 1e-13 on
-    ``[0, ∞)``, so this is exact in time too). Both paths give the same numbers
-    to ~1e-12 (tests/test_solver_analytic.py).
+    ``[0, ∞)``, so this is exact in time too). Both paths agree to round-off,
+    which grows with ``τ λ_max`` (the conditioning of ``e^{-τK}``); the bound is
+    derived in tests/test_solver_analytic.py.
 
 ``evolve_nonlinear`` (D depends on the diffusing quantity, e.g. Fe–Mg in olivine)
     The same fluxes with ``d_rel(C)`` at the faces (arithmetic mean of the two

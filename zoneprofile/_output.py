@@ -38,11 +38,11 @@ def check_outputs(*paths, force: bool = False) -> list[Path]:
         if path is None:
             continue
         p = Path(path)
+        if p.is_dir():  # whatever its name; --force cannot turn a folder into a file
+            message = "output is a folder, expected a file name"
+            raise InputError(message, path=p)
         if p.exists() and not force:
             message = "output exists; pass --force to overwrite it"
-            raise InputError(message, path=p)
-        if p.exists() and p.is_dir() and not p.suffix == "":
-            message = "output is a folder, expected a file name"
             raise InputError(message, path=p)
         parent = p.parent if str(p.parent) else Path(".")
         if not parent.exists():

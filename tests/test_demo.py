@@ -124,6 +124,7 @@ def test_the_two_recharge_events_are_found(results, truth):
         assert event["fraction_of_crystals"] == pytest.approx(recorded / n_analysed)
 
 
+@pytest.mark.slow  # two worker processes; 3 s idle, 11 s with the machine shared
 def test_campaign_reruns_to_the_same_times_with_two_workers(demo_dir, results, tmp_path):
     out = tmp_path / "again"
     code, _, err = run_cli("run", demo_dir / "campaign" / "emberfell.toml", "--out", out, "--workers", "2",
@@ -178,7 +179,8 @@ def test_dask_cluster_on_loopback_gives_the_same_times(demo_dir, results, tmp_pa
     (folder / "subset.toml").write_text(head + "".join("[[crystals]]" + b for b in keep))
     campaign = load_campaign(folder / "subset.toml")
     with distributed.LocalCluster(n_workers=2, processes=True, threads_per_worker=1, host="127.0.0.1",
-                                  dashboard_address=None, silence_logs=logging.ERROR) as cluster:
+                                  dashboard_address="127.0.0.1:0",  # None still binds 8787: clashes
+                                  silence_logs=logging.ERROR) as cluster:  # with a second run on one machine
         summary = execute_campaign(campaign, scheduler=cluster.scheduler_address, workers=2, progress=False,
                                    cache=False)
     assert summary.provenance["run"]["scheduler"].startswith("tcp://127.0.0.1:")

@@ -48,6 +48,7 @@ def test_stacked_columns_equal_single_integrations(rim):
         assert np.allclose(g.volumes @ many, g.volumes @ c0, rtol=1e-12)
 
 
+@pytest.mark.slow  # 3.5 s CPU on an idle core, 19 s with the machine shared
 def test_default_steps_against_a_fine_step_reference():
     # 24 geometric steps from 3 % of τ (3 backward-Euler start-up steps) against 2000 steps from
     # 1e-5·τ, over seven decades of τ on a fit's grid: below 2e-3 Fo for an 8 Fo step and well below

@@ -179,6 +179,7 @@ def test_two_adjacent_noisy_points_are_not_a_step():
     assert abs(steps[0]["position_um"] - 70.0) < 2.0
 
 
+@pytest.mark.slow  # 3.8 s CPU on an idle core
 def test_batched_jump_tests_match_window_by_window_least_squares(monkeypatch):
     # invariant: the batch of local jump tests (all windows of all candidates in one
     # padded least-squares batch) picks the same gap, window and half-width as the

@@ -153,7 +153,8 @@ def _dask(tasks, process, on_done, workers, scheduler):
     cluster = None
     if scheduler == "local-cluster":
         cluster = LocalCluster(n_workers=max(int(workers), 1), threads_per_worker=1, processes=True,
-                               host="127.0.0.1", dashboard_address=None, silence_logs=logging.ERROR)
+                               host="127.0.0.1", dashboard_address="127.0.0.1:0",  # any free port: no
+                               silence_logs=logging.ERROR)  # clash (and warning) with another cluster on 8787
         client = Client(cluster)
     else:
         try:

@@ -48,7 +48,8 @@ from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for co
     _refit_projected,
     _ResidualAndJacobian,
 )
-from zoneprofile.diffusion._steps import _noise_sd, _other_steps, _side_means, find_boundaries
+from zoneprofile.diffusion import _window
+from zoneprofile.diffusion._steps import _noise_sd, _side_means, find_boundaries
 from zoneprofile.diffusion.uncertainty import propagate
 
 __all__ = ["fit_boundary", "find_boundaries", "ELEMENT_COLUMNS"]
@@ -277,6 +278,7 @@ def _fit_boundary(
     noise_refits=40,
     n_cells=400,
     value_name=None,
+    neighbours_um=None,
 ):
     """Fit a diffusion model to one boundary of a profile and date it.
 
@@ -328,6 +330,12 @@ def _fit_boundary(
         Temperature–time path; the time is then the duration along the path.
     noise_refits : int
         Refits of residual-resampled data for the analytical-noise part.
+    neighbours_um : list of float, optional
+        Positions of the other steps of the traverse (the zoning analysis, other
+        boundaries); more are searched for (:mod:`~zoneprofile.diffusion._window`).
+        The window ends outside each neighbour's diffused zone, and a boundary
+        whose zone overlaps a neighbour's is not dated alone (``statement:
+        "none"``, deferred to the whole-crystal model).
 
     Returns
     -------
@@ -411,23 +419,21 @@ def _fit_boundary(
         fixed = boundary_window_um is None
     if not x_all[0] <= b0 <= x_all[-1]:
         raise InputError(f"boundary {b0:g} µm lies outside the profile ({x_all[0]:g}–{x_all[-1]:g} µm)")
-    if segment_um is None:
-        # other zone boundaries in the profile would break the one-step initial condition:
-        # keep the part between the midpoints to the neighbouring significant steps
-        if needs_an and an_vals is not None:
-            sig_x, sig_y, min_step = an_x, an_vals, 2.0
-        else:
-            sig_x, sig_y, min_step = x, y, 0.0
-        others = _other_steps(sig_x, sig_y, b0, min_step)
-        lo_seg = max([0.5 * (o + b0) for o in others if o < b0], default=-math.inf)
-        hi_seg = min([0.5 * (o + b0) for o in others if o > b0], default=math.inf)
-        if np.isfinite(lo_seg) or np.isfinite(hi_seg):
-            keep = (x >= lo_seg) & (x <= hi_seg)
-            if np.sum(keep & (x < b0)) >= _MIN_SIDE_POINTS and np.sum(keep & (x > b0)) >= _MIN_SIDE_POINTS:
-                x, y = x[keep], y[keep]
-                sd = None if sd is None else sd[keep]
-                segment_um = (lo_seg, hi_seg)
-                spacing = float(np.median(np.diff(x)))
+    # ---- window: no neighbouring step inside, no cut edge inside this boundary's diffused zone
+    plan = None
+    if segment_um is None or neighbours_um is not None:
+        plan = _window.plan(x, y, b0, an_x=an_x if needs_an else None, an=an_vals if needs_an else None,
+                            given=neighbours_um, noise=None if sd is None else float(np.median(sd)))
+        keep = (x >= plan["lo_um"]) & (x <= plan["hi_um"])
+        if np.sum(keep & (x < b0)) >= _MIN_SIDE_POINTS and np.sum(keep & (x > b0)) >= _MIN_SIDE_POINTS:
+            x, y = x[keep], y[keep]
+            sd = None if sd is None else sd[keep]
+            if math.isfinite(plan["lo_um"]) or math.isfinite(plan["hi_um"]):
+                segment_um = (plan["lo_um"], plan["hi_um"])
+            spacing = float(np.median(np.diff(x)))
+    elif segment_um is not None:
+        plan = {"neighbours": [], "lo_um": float(segment_um[0]), "hi_um": float(segment_um[1]),
+                "edges": {"rimward": "given segment", "coreward": "given segment"}}
     n_left, n_right = int(np.sum(x < b0)), int(np.sum(x > b0))
     if min(n_left, n_right) < _MIN_SIDE_POINTS:
         raise InputError(
@@ -645,6 +651,18 @@ def _fit_boundary(
     }
     result = propagate(context)
     result.warnings = warnings + result.warnings
+    td = result.time_days
+    td.setdefault("lower_bound", None)
+    td.setdefault("statement", "date" if result.resolved else
+                  ("upper_bound" if td.get("upper_bound") is not None else "none"))
+    window_entry = None
+    if plan is not None:
+        spread = _window.fitted_spread_um(best[0], beam_sigma_um(beam_um, beam_shape))
+        alone, reasons = _window.verdict(float(best[1]), spread, plan["neighbours"], plan["lo_um"], plan["hi_um"],
+                                         float(x_all[0]), float(x_all[-1]))
+        window_entry = _window.describe(plan, float(best[1]), spread, alone, reasons)
+        if not alone:
+            _window.defer(result, reasons)
     result.parameters = params_report
     result.chi2 = chi2
     result.reduced_chi2 = chi2 / dof
@@ -668,6 +686,7 @@ def _fit_boundary(
         "path": None if path is None else path.to_dict(),
         "segment_um": [float(x[0]), float(x[-1])],
         "undiffused_step_delta_chi2": floor_delta_chi2,
+        "window": window_entry,
     }
     return result
 

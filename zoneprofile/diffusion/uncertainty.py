@@ -130,6 +130,9 @@ class FitResult:
                 f"68%: {_fmt_days(t['p16'])} – {_fmt_days(t['p84'])}; "
                 f"95%: {_fmt_days(t['p2_5'])} – {_fmt_days(t['p97_5'])})"
             )
+        elif (self.setup.get("window") or {}).get("dated_alone") is False:
+            lines.append("  NOT DATED ALONE: a neighbouring step is too close (see the warning); deferred to the "
+                         "whole-crystal model")
         elif t.get("upper_bound") is None:
             lines.append("  NOT RESOLVED: the data do not bound the time (no time for this element)")
         else:

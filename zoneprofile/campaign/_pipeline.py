@@ -29,7 +29,6 @@ from zoneprofile._validation import InputError
 from zoneprofile.campaign._boundaries import (
     match_position,
     position_window,
-    segment_of,
     select_boundaries,
 )
 from zoneprofile.campaign._pictures import calibrated_image, render_figures, render_map
@@ -144,16 +143,13 @@ def _column(frame, name):
     return values
 
 
-def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window, segment, beam, shape,
+def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window, neighbours, beam, shape,
              obliquity, obliquity_sd, seed):
     from zoneprofile.diffusion import fit_boundary
 
     law = params.get("laws", {}).get(element)
     keep = np.isfinite(v)
-    lo, hi = segment
     x_keep = x[keep]
-    lo = float(x_keep.min()) - 1.0 if lo is None else lo
-    hi = float(x_keep.max()) + 1.0 if hi is None else hi
     return fit_boundary(
         x_keep,
         v[keep],
@@ -166,7 +162,7 @@ def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window
         an_beam_um=an_beam,
         boundary_um=position,
         boundary_window_um=window,
-        segment_um=(lo, hi),
+        neighbours_um=neighbours,
         beam_um=beam,
         beam_shape=shape,
         law=law,
@@ -497,7 +493,8 @@ def _stages(task, record, transient):
         if k is not None and map_bounds[k].get("obliquity_sd_deg") is not None:
             obliquity_sd = float(map_bounds[k]["obliquity_sd_deg"])
         window = position_window(boundary, params.get("boundary_window_um"))
-        segment = segment_of(boundary["position_um"], all_positions)
+        # the window is drawn by the fit: outside each neighbour's diffused zone (diffusion._window)
+        neighbours = [p for p in all_positions if abs(p - boundary["position_um"]) > 1e-9]
         for element in params["elements"]:
             name = value_columns[element]
             x = v = None
@@ -523,7 +520,7 @@ def _stages(task, record, transient):
             try:
                 result = _fit_one(x, v, element=element, task=task, params=params, an=an, an_x=an_x,
                                   an_beam=an_beam, position=boundary["position_um"], window=window,
-                                  segment=segment, beam=beam, shape=shape, obliquity=obliquity,
+                                  neighbours=neighbours, beam=beam, shape=shape, obliquity=obliquity,
                                   obliquity_sd=obliquity_sd, seed=seed)
                 fitted.append(_boundary_entry(result, boundary, element, obliquity))
             except (KeyboardInterrupt, SystemExit, MemoryError):

@@ -292,17 +292,15 @@ def run(args):
                              path=profile_path, column="distance_um")
     fits = []
     for k, b in enumerate(boundaries):
-        segment = None
-        if b is not None and len(boundaries) > 1:
-            lo = -math.inf if k == 0 else 0.5 * (boundaries[k - 1] + b)
-            hi = math.inf if k == len(boundaries) - 1 else 0.5 * (b + boundaries[k + 1])
-            segment = (lo, hi)
+        # the other boundaries given are this one's neighbours: the fit keeps them (and any other
+        # step it finds) outside its window, or says the boundary cannot be dated alone
+        neighbours = [o for o in boundaries if o is not None and o != b] or None
         try:
             result = fit_boundary(
                 distance, values, element=element, mineral=mineral, temperature_c=args.temperature_c,
                 temperature_sd_c=args.temperature_sd_c, an=an, an_distance_um=None if an_source is None else an_x,
                 an_beam_um=an_beam, boundary_um=b, boundary_window_um=args.boundary_window_um,
-                segment_um=segment, beam_um=args.beam_um, beam_shape=args.beam_shape, law=args.law,
+                neighbours_um=neighbours, beam_um=args.beam_um, beam_shape=args.beam_shape, law=args.law,
                 partition=args.partition, draws=args.draws, seed=args.seed + k,
                 obliquity_deg=args.obliquity_deg, obliquity_sd_deg=args.obliquity_sd_deg, dip_deg=args.dip_deg,
                 value_sd=value_sd, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa,

@@ -9,6 +9,7 @@ import math
 
 import numpy as np
 
+from zoneprofile.diffusion._optimise import _coarse_start, _least_squares, _projected_fit
 from zoneprofile.diffusion._steps import _noise_sd, _running_mean, _side_means
 
 
@@ -209,7 +210,6 @@ def _tie_to_an_step(problem, cells_at, gap, t0, y, weights, log_bounds, known_sd
     the step and its standard error; it multiplies the likelihood (the An
     points see the step too).
     """
-    from zoneprofile.diffusion.fitting import _coarse_start, _least_squares, _projected_fit
 
     lo, hi = gap
     if hi - lo <= 1e-9:

@@ -29,6 +29,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from zoneprofile.diffusion._optimise import _least_squares, _projected_fit, _refit_projected
+
 __all__ = ["FitResult", "propagate", "PERCENTILES"]
 
 SECONDS_PER_DAY = 86400.0
@@ -128,6 +130,9 @@ class FitResult:
                 f"68%: {_fmt_days(t['p16'])} – {_fmt_days(t['p84'])}; "
                 f"95%: {_fmt_days(t['p2_5'])} – {_fmt_days(t['p97_5'])})"
             )
+        elif (self.setup.get("window") or {}).get("dated_alone") is False:
+            lines.append("  NOT DATED ALONE: a neighbouring step is too close (see the warning); deferred to the "
+                         "whole-crystal model")
         elif t.get("upper_bound") is None:
             lines.append("  NOT RESOLVED: the data do not bound the time (no time for this element)")
         else:
@@ -168,7 +173,6 @@ def _percentiles(values):
 
 def _noise_offsets(ctx, rng):
     """log10 τ of refits to resampled data (or covariance draws); also the refit parameter sets."""
-    from zoneprofile.diffusion.fitting import _least_squares, _projected_fit
 
     problem, model, best = ctx["problem"], ctx["model"], ctx["best"]
     lower, upper, vary = ctx["lower"], ctx["upper"], np.array(ctx["vary"])
@@ -211,7 +215,6 @@ def _noise_offsets(ctx, rng):
 
 def _temperature_shape(ctx):
     """log10 τ(T) − log10 τ(T0) as a function of δT (None when the shape does not depend on T)."""
-    from zoneprofile.diffusion.fitting import _least_squares, _refit_projected
 
     problem = ctx["problem"]
     t0, sd = ctx["temperature_c"], ctx["temperature_sd_c"]

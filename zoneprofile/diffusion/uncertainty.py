@@ -426,7 +426,7 @@ def propagate(ctx) -> FitResult:
         theta = bud.section_obliquity_deg(traverse_seed, n_draws, sd_deg=options.obliquity_default_sd_deg,
                                           max_deg=bud.MAX_OBLIQUITY_DEG)
         factor = np.cos(np.radians(theta)) ** 2
-        factor_best = float(np.median(factor))
+        factor_best = 1.0  # "best" is the fit at the stated conditions; the draws carry the prior
         obl = {"psi_deg": None, "default_distribution": (
             f"half-normal, sd {options.obliquity_default_sd_deg:g}°, cut at {bud.MAX_OBLIQUITY_DEG:g}°"),
             "time_factor": factor_best, "formula": "t_true = t_apparent · cos²θ",

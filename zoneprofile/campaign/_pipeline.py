@@ -156,7 +156,7 @@ def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window
         element=element,
         mineral=task["mineral"],
         temperature_c=params["temperature_c"],
-        temperature_sd_c=params.get("temperature_sd_c", 0.0),
+        temperature_sd_c=params.get("temperature_sd_c"),
         an=an,
         an_distance_um=an_x,
         an_beam_um=an_beam,
@@ -173,6 +173,21 @@ def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window
         fo2_pa=params.get("fo2_pa"),
         pressure_mpa=params.get("pressure_mpa"),
         **({"n_cells": int(params["solver_cells"])} if params.get("solver_cells") else {}),
+        budget=_budget_options(params),
+    )
+
+
+def _budget_options(params):
+    """The budget settings of one crystal: temperature and law deviates shared per sample, the
+    section obliquity and spot deviates per traverse (docs/fitting-and-uncertainty.md)."""
+    from zoneprofile.diffusion._budget import BudgetOptions
+
+    return BudgetOptions(
+        shared_seed=params.get("sample_seed"), traverse_seed=params.get("seed"),
+        beam_sd_um=params.get("beam_sd_um"), growth_width_sd_um=params.get("growth_width_sd_um"),
+        section_obliquity=bool(params.get("section_obliquity", True)), fo2_buffer=params.get("fo2_buffer"),
+        fo2_delta_log=float(params.get("fo2_delta_log") or 0.0),
+        partition_a_sd_j_mol=params.get("partition_a_sd_j_mol"),
     )
 
 

@@ -77,7 +77,7 @@ MINERALS: dict[str, dict] = {
 # Built-in defaults (documented in docs/run-a-campaign.md).
 BUILTIN = {
     "mineral": "plagioclase",
-    "temperature_sd_c": 0.0,
+    "temperature_sd_c": None,  # None: the fit's stated default, named in the output
     "beam_um": None,
     "beam_shape": "gaussian",
     "trace_beam_um": None,
@@ -93,6 +93,12 @@ BUILTIN = {
     "fo2_pa": None,
     "pressure_mpa": None,
     "solver_cells": None,
+    "section_obliquity": True,
+    "beam_sd_um": None,
+    "growth_width_sd_um": None,
+    "fo2_buffer": None,
+    "fo2_delta_log": 0.0,
+    "partition_a_sd_j_mol": None,
     "sheet": None,
     "comment": "",
 }
@@ -102,6 +108,7 @@ _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
     "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
     "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "comment",
+    "section_obliquity", "beam_sd_um", "growth_width_sd_um", "fo2_buffer", "fo2_delta_log", "partition_a_sd_j_mol",
 )
 _CRYSTAL_KEYS = _SETTING_KEYS + (
     "sample", "id", "traverse", "trace", "map", "spots", "line", "pixel_um", "channel", "width_px", "rim_normal",
@@ -153,6 +160,12 @@ class Campaign:
             "defaults": self.defaults,
             "samples": self.samples,
         }
+
+
+def _sample_seed(campaign_seed: int, sample: str) -> int:
+    from zoneprofile.diffusion.draws import sample_seed
+
+    return sample_seed(campaign_seed, sample)
 
 
 def crystal_seed(campaign_seed: int, sample: str, crystal: str) -> int:
@@ -350,6 +363,18 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = _number(ctx, value, w, low=1e-20, high=1e5, unit="Pa")
         elif key == "pressure_mpa":
             out[key] = _number(ctx, value, w, low=0, high=5000, unit="MPa")
+        elif key == "section_obliquity":
+            out[key] = _boolean(ctx, value, w)
+        elif key in ("beam_sd_um", "growth_width_sd_um"):
+            out[key] = _number(ctx, value, w, low=0, high=100, unit="µm")
+        elif key == "fo2_buffer":
+            from zoneprofile.diffusion.laws.buffers import BUFFERS
+
+            out[key] = _text(ctx, value, w, choices=(*BUFFERS, "FMQ"))
+        elif key == "fo2_delta_log":
+            out[key] = _number(ctx, value, w, low=-10, high=10)
+        elif key == "partition_a_sd_j_mol":
+            out[key] = _number(ctx, value, w, low=0, high=1e6, unit="J/mol")
         elif key == "solver_cells":
             out[key] = _number(ctx, value, w, low=50, high=5000, integer=True)
         elif key in ("sheet", "comment"):
@@ -559,6 +584,7 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
             params["rim_normal"] = _boolean(ctx, table["rim_normal"], where + ("rim_normal",))
         params["draws"] = draws
         params["seed"] = crystal_seed(seed, sample, crystal)
+        params["sample_seed"] = _sample_seed(seed, sample)
         crystals.append(CrystalSpec(sample, crystal, i, ctx.lines.line_of(where), inputs, params))
 
     return Campaign(

@@ -27,8 +27,24 @@ def configure(parser):
                         help="plagioclase, alkali-feldspar, olivine, clinopyroxene or quartz")
     parser.add_argument("--temperature-c", type=float, required=True, metavar="T",
                         help="storage temperature, °C")
-    parser.add_argument("--temperature-sd-c", type=float, default=0.0, metavar="S",
-                        help="1-sigma uncertainty of the temperature, °C (default 0)")
+    parser.add_argument("--temperature-sd-c", type=float, default=None, metavar="S",
+                        help="1-sigma uncertainty of the temperature, °C (default: a stated 20 °C, with a "
+                             "warning; give 0 to leave temperature out of the budget)")
+    budget = parser.add_argument_group("uncertainty budget (docs/fitting-and-uncertainty.md)")
+    budget.add_argument("--beam-sd-um", type=float, metavar="S",
+                        help="1-sigma of the spot diameter, µm (default: 20%% of --beam-um, named in the output)")
+    budget.add_argument("--growth-width-sd-um", type=float, metavar="S",
+                        help="sd of the half-normal width the boundary had when it grew, µm (default 0.5; 0: off)")
+    budget.add_argument("--no-section-obliquity", action="store_true",
+                        help="do not draw the unknown section obliquity from the stated default distribution "
+                             "(half-normal, sd 20°, cut at 60°) when no --obliquity-deg is given")
+    budget.add_argument("--fo2-buffer", metavar="BUFFER",
+                        help="olivine: fO2 follows this buffer (QFM, NNO, IW) with temperature, in the fit and "
+                             "in every temperature draw")
+    budget.add_argument("--fo2-delta-log", type=float, default=0.0, metavar="D",
+                        help="log10 units above the --fo2-buffer (e.g. 1 for ΔQFM = +1; default 0)")
+    budget.add_argument("--partition-a-sd", type=float, metavar="J",
+                        help="1-sigma of the partition parameter A, J/mol (default: 10%% of |A|, named in the output)")
     parser.add_argument("--boundary-um", type=float, nargs="+", metavar="X",
                         help="boundary position(s), µm from the rim; each is fitted separately and held "
                              "fixed (default: the largest step, its position fitted)")
@@ -181,7 +197,17 @@ def run(args):
     if mineral not in MINERALS:
         raise InputError(f"unknown mineral '{args.mineral}'; choose one of: {', '.join(MINERALS)}")
     require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
-    require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
+    if args.temperature_sd_c is not None:
+        require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
+    for name in ("beam_sd_um", "growth_width_sd_um", "partition_a_sd"):
+        if getattr(args, name) is not None:
+            require_positive(getattr(args, name), "--" + name.replace("_", "-"), allow_zero=True)
+    if args.fo2_buffer is not None:
+        from zoneprofile.diffusion.laws.buffers import log10_fo2_buffer_pa
+
+        log10_fo2_buffer_pa(args.fo2_buffer, 1000.0)
+        if args.fo2_pa is not None:
+            raise InputError("give either --fo2-pa or --fo2-buffer, not both")
     if args.draws < 10 or args.draws > 1_000_000:
         raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
     for name in ("beam_um", "an_beam_um", "radius_um", "boundary_window_um"):
@@ -305,7 +331,7 @@ def run(args):
                 obliquity_deg=args.obliquity_deg, obliquity_sd_deg=args.obliquity_sd_deg, dip_deg=args.dip_deg,
                 value_sd=value_sd, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa,
                 direction=args.direction, rim=args.rim, geometry=args.geometry, radius_um=args.radius_um,
-                path=path_obj, value_name=col if col != "X_Fe" else "Fo",
+                path=path_obj, value_name=col if col != "X_Fe" else "Fo", budget=_budget_options(args),
             )
         except InputError as exc:
             if exc.path is None:
@@ -344,3 +370,13 @@ def run(args):
 
 def _label(col, element):
     return {"Fo": "Fo (mol%)", "X_Fe": "Fo (mol%)", "Mg_number": "Mg# (mol%)"}.get(col, f"{element} (ppm)")
+
+
+def _budget_options(args):
+    """Budget settings of one run: all fits made with one --seed share their temperature draws."""
+    from zoneprofile.diffusion._budget import BudgetOptions, cli_shared_seed
+
+    return BudgetOptions(shared_seed=cli_shared_seed(args.seed), beam_sd_um=args.beam_sd_um,
+                         growth_width_sd_um=args.growth_width_sd_um,
+                         section_obliquity=not args.no_section_obliquity, fo2_buffer=args.fo2_buffer,
+                         fo2_delta_log=args.fo2_delta_log, partition_a_sd_j_mol=args.partition_a_sd)

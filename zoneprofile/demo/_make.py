@@ -189,6 +189,8 @@ def _campaign_text(entries, *, seed, draws, title, elements) -> str:
         f"trace_beam_um = {LA_SPOT_UM:g}        # laser spot width along the traverse (µm)",
         "trace_beam_shape = \"square\"",
         "boundaries = \"recharge\"  # date the recharge-like boundaries the zoning analysis finds",
+        "section_obliquity = false  # these sections were cut normal to the zoning; leave it out (true) when",
+        "#                           the angle is unknown and a stated default distribution is drawn",
         "# The tables also hold Sr. Sr diffuses about 20 times slower than Mg: add it with",
         "# elements = [\"Mg\", \"Sr\"] only where its profiles are wider than the beam (older boundaries).",
         "# laws = { Mg = \"...\" }  # override the default law per element ('zoneprofile laws' lists them)",

@@ -250,7 +250,7 @@ def _fit_boundary(
     element,
     mineral,
     temperature_c,
-    temperature_sd_c=0.0,
+    temperature_sd_c=None,
     an=None,
     an_distance_um=None,
     an_beam_um=None,
@@ -279,6 +279,7 @@ def _fit_boundary(
     n_cells=400,
     value_name=None,
     neighbours_um=None,
+    budget=None,
 ):
     """Fit a diffusion model to one boundary of a profile and date it.
 
@@ -290,7 +291,9 @@ def _fit_boundary(
     element : {'Mg', 'Sr', 'Ba', 'FeMg', 'Ti'}
     mineral : {'plagioclase', 'alkali-feldspar', 'olivine', 'clinopyroxene', 'quartz'}
     temperature_c, temperature_sd_c : float
-        Storage temperature (°C) and its 1-sigma uncertainty.
+        Storage temperature (°C) and its 1-sigma uncertainty (None: the stated
+        default :data:`~zoneprofile.diffusion._budget.DEFAULT_TEMPERATURE_SD_C`,
+        with a warning).
     an, an_distance_um : array_like, optional
         An (mol%) and its positions (default ``distance_um``); needed for
         plagioclase laws that depend on X_An and for the An-coupled model.
@@ -329,13 +332,18 @@ def _fit_boundary(
     path : LinearCooling or TablePath, optional
         Temperature–time path; the time is then the duration along the path.
     noise_refits : int
-        Refits of residual-resampled data for the analytical-noise part.
+        Refits of residual-resampled data for the analytical-noise part (the
+        first round; rounds double until the percentiles are stable).
     neighbours_um : list of float, optional
         Positions of the other steps of the traverse (the zoning analysis, other
         boundaries); more are searched for (:mod:`~zoneprofile.diffusion._window`).
         The window ends outside each neighbour's diffused zone, and a boundary
         whose zone overlaps a neighbour's is not dated alone (``statement:
         "none"``, deferred to the whole-crystal model).
+    budget : BudgetOptions or dict, optional
+        The other sources of uncertainty (beam size sd, growth width, section
+        obliquity default, fO2 buffer, partition sd, shared seeds); see
+        :mod:`zoneprofile.diffusion._budget`. None: the stated defaults.
 
     Returns
     -------
@@ -344,8 +352,21 @@ def _fit_boundary(
     from zoneprofile.diffusion.laws import default_law, get_law
 
     el, mi, x_all, y_all = _check_inputs(distance_um, value, element, mineral, temperature_c)
+    from zoneprofile.diffusion._budget import DEFAULT_TEMPERATURE_SD_C, BudgetOptions
+
     t0 = float(temperature_c)
-    t_sd = float(temperature_sd_c or 0.0)
+    defaults_used = {}
+    if temperature_sd_c is None:
+        temperature_sd_c = DEFAULT_TEMPERATURE_SD_C
+        defaults_used["temperature_sd_c"] = (f"{DEFAULT_TEMPERATURE_SD_C:g} °C (1σ; no temperature uncertainty "
+                                             "was given)")
+    options = budget if isinstance(budget, BudgetOptions) else BudgetOptions(**(budget or {}))
+    options = options.checked()
+    if options.fo2_buffer is not None and fo2_pa is None:
+        from zoneprofile.diffusion.laws.buffers import fo2_buffer_pa
+
+        fo2_pa = float(fo2_buffer_pa(options.fo2_buffer, t0, delta_log=options.fo2_delta_log))
+    t_sd = float(temperature_sd_c)
     if not math.isfinite(t_sd) or t_sd < 0:
         raise InputError(f"temperature uncertainty must be >= 0 °C, got {temperature_sd_c}")
     law_obj = default_law(el, mi) if law is None else get_law(law)
@@ -648,6 +669,11 @@ def _fit_boundary(
         "position_candidates": an_info.get("position_candidates") or [],
         "floor_delta_chi2": floor_delta_chi2,
         "profile_upper_log10_dt": upper_log10_dt,
+        "budget_options": options, "defaults_used": defaults_used,
+        "an_inputs": None if x_an_cells is None or an_vals is None else {
+            "x": an_x, "values": an_vals,
+            "cells_for": lambda v: _frozen_an(grid, an_x, v, an_beam_um, b0, window)[0](
+                b0 if an_info.get("tied_position_um") is not None or an_info.get("sharpened") else None)},
     }
     result = propagate(context)
     result.warnings = warnings + result.warnings

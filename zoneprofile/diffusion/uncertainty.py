@@ -77,6 +77,7 @@ class FitResult:
     setup: dict = field(default_factory=dict)
     draws: int = 0
     noise_method: str = ""
+    budget_info: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         return {
@@ -99,6 +100,7 @@ class FitResult:
             "n_points": self.n_points,
             "boundary_fixed": self.boundary_fixed,
             "uncertainty_budget_log10_time_sd": self.uncertainty_budget,
+            "uncertainty_budget_settings": self.budget_info,
             "obliquity": self.obliquity,
             "temperature_nodes": self.temperature_nodes,
             "an_profile": self.an_profile,
@@ -186,7 +188,7 @@ def _noise_offsets(ctx, rng):
         var_names = [nm for nm, v in zip(names, vary) if v]
         covar = getattr(out, "covar", None)
         if covar is not None and np.all(np.isfinite(covar)) and out.var_names == var_names:
-            draws = rng.multivariate_normal(best[vary], covar, size=max(n_refits, 30))
+            draws = rng.multivariate_normal(best[vary], covar, size=max(n_refits, 2000))
             thetas = np.tile(best, (draws.shape[0], 1))
             thetas[:, vary] = draws
             thetas = np.clip(thetas, lower, upper)
@@ -202,15 +204,64 @@ def _noise_offsets(ctx, rng):
     lo_fit = np.where(vary, lower, best - 1e-9)
     hi_fit = np.where(vary, upper, best + 1e-9)
     linear = hasattr(model, "basis_predictions")
-    y_stars = [pred + rng.choice(scaled, size=n, replace=True) / weights for _ in range(n_refits)]
     if linear:
-        # all refits at once (variable projection, vectorised over the resampled sets)
-        thetas, _ = _projected_fit(model, np.array(y_stars), weights, best, lower, upper, vary)
-        return thetas, f"residual bootstrap, {n_refits} refits"
+        # all refits of a round at once (variable projection, vectorised over the resampled
+        # sets); rounds double the refits until the percentiles are stable (_refits_stable)
+        def round_of(count):
+            y_stars = np.array([pred + rng.choice(scaled, size=n, replace=True) / weights for _ in range(count)])
+            return _projected_fit(model, y_stars, weights, best, lower, upper, vary)[0]
+
+        thetas = round_of(n_refits)
+        while thetas.shape[0] < MAX_NOISE_REFITS:
+            more = np.vstack([thetas, round_of(min(thetas.shape[0], MAX_NOISE_REFITS - thetas.shape[0]))])
+            stable = _refits_stable(thetas[:, 0], more[:, 0])
+            thetas = more
+            if stable:
+                break
+        return thetas, f"residual bootstrap, {thetas.shape[0]} refits (grown until stable)"
+    y_stars = [pred + rng.choice(scaled, size=n, replace=True) / weights for _ in range(n_refits)]
     for y_star in y_stars:
         theta, _ = _least_squares(model, y_star, weights, best, lo_fit, hi_fit, max_nfev=200)
         thetas.append(theta)
     return np.array(thetas), f"residual bootstrap, {n_refits} refits"
+
+
+_DEFAULT_LABELS = {
+    "temperature_sd_c": "the temperature uncertainty", "beam_sd_um": "the uncertainty of the spot size",
+    "growth_width_sd_um": "the width of the boundary when it grew",
+    "section_obliquity": "the section obliquity", "partition_a_sd_j_mol": "the uncertainty of partition A",
+}
+
+#: percentiles of log10 D·t (noise refits) that must be stable, and by how much (log10 units)
+STABLE_PERCENTILES = (2.5, 50.0, 97.5)
+STABLE_TOLERANCE_LOG10 = 0.02
+MAX_NOISE_REFITS = 1280
+
+
+def _refits_stable(before, after) -> bool:
+    """Rule: doubling the refits moved none of the 2.5/50/97.5 percentiles by more than 0.02 log10."""
+    a = np.percentile(before, STABLE_PERCENTILES)
+    b = np.percentile(after, STABLE_PERCENTILES)
+    return bool(np.max(np.abs(a - b)) <= STABLE_TOLERANCE_LOG10)
+
+
+def _mixture_quantile(q, sd, shifts, weights):
+    """q-quantile of Σ wᵢ·N(sᵢ, sd) (deterministic: no draws)."""
+    from scipy.optimize import brentq
+    from scipy.special import ndtr
+
+    shifts = np.asarray(shifts, float)
+    w = np.asarray(weights, float) / np.sum(weights)
+    if sd <= 0:
+        order = np.argsort(shifts)
+        c = np.cumsum(w[order])
+        return float(shifts[order][np.searchsorted(c, q)])
+
+    def f(x):
+        return float(np.sum(w * ndtr((x - shifts) / sd))) - q
+
+    lo, hi = float(shifts.min()) - 10 * sd, float(shifts.max()) + 10 * sd
+    return float(brentq(f, lo, hi, xtol=1e-6))
 
 
 def _temperature_shape(ctx):
@@ -270,8 +321,14 @@ def propagate(ctx) -> FitResult:
     log_noise = thetas[:, 0]
     shape_fn, nodes = _temperature_shape(ctx)
 
-    # --- draws
-    z_t = rng.standard_normal(n_draws)
+    # --- draws (module notes; the terms beyond the profile come from _budget)
+    from zoneprofile.diffusion import _budget as bud
+
+    options = ctx.get("budget_options") or bud.BudgetOptions()
+    shared_seed, traverse_seed = bud.seeds(options, ctx["seed"])
+    defaults_used = dict(ctx.get("defaults_used") or {})
+    # temperature: one deviate per sample and draw index, never from the bootstrap's generator
+    z_t = bud.shared_normals(shared_seed, n_draws, "temperature")
     t_draw = t0 + t_sd * z_t
     if np.any(t_draw <= 0):
         t_draw = np.maximum(t_draw, 1.0)
@@ -297,17 +354,57 @@ def propagate(ctx) -> FitResult:
     # position of a boundary tied to a sharp An step: the data cannot place it inside the
     # gap between two An points better than their likelihood says; spread over positions
     cands = ctx.get("position_candidates") or []
+    shifts, wts = np.zeros(1), np.ones(1)
     if len(cands) > 1:
         wts = np.array([c["weight"] for c in cands])
         shifts = np.array([c["log10_dt_m2"] for c in cands]) - cands[int(np.argmax(wts))]["log10_dt_m2"]
         eps = eps + shifts[rng.choice(len(cands), size=n_draws, p=wts / wts.sum())]
     g = np.zeros(n_draws) if shape_fn is None else shape_fn(t_draw - t0)
+    # law parameters: the law is the same for the whole sample, so its deviates are shared
     perturb = {}
     for name, sd in (getattr(law, "parameter_sd", {}) or {}).items():
         if sd and np.isfinite(sd) and sd > 0:
-            perturb[name] = rng.normal(0.0, float(sd), n_draws)
-    # m², D_ref(T_k)·t; draws stay inside the range of D·t the fit searched
-    log_tau = np.clip(best[0] + g + eps, log_lo, log_hi)
+            perturb[name] = float(sd) * bud.shared_normals(shared_seed, n_draws, f"law parameter {name}")
+    # partition coefficient A (plagioclase trace elements): slope of log10 D·t on A
+    a_sd = 0.0
+    log_partition = np.zeros(n_draws)
+    if problem.coupling == "an" and problem.partition_ab is not None:
+        a_sd = options.partition_a_sd_j_mol
+        if a_sd is None:
+            a_sd = bud.DEFAULT_PARTITION_A_SD_FRACTION * abs(problem.partition_ab[0])
+            defaults_used["partition_a_sd_j_mol"] = (
+                f"{a_sd:.3g} J/mol ({bud.DEFAULT_PARTITION_A_SD_FRACTION:.0%} of |A|; the model gives no sd)")
+        slope, a_sd = bud.partition_term(ctx, float(a_sd))
+        log_partition = slope * a_sd * bud.shared_normals(shared_seed, n_draws, "partition A")
+    # An noise: refits with the An points perturbed by their own scatter
+    log_an = np.zeros(n_draws)
+    an_offsets = bud.an_noise_offsets(ctx, ctx["seed"]) if options.an_noise else np.zeros(0)
+    if an_offsets.size > 2:
+        log_an = float(np.sqrt(np.mean(an_offsets**2))) * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+    # m², D_ref(T_k)·t of the apparent profile; draws stay inside the range of D·t the fit searched
+    log_tau = np.clip(best[0] + g + eps + log_partition + log_an, log_lo, log_hi)
+
+    # beam size and growth width: variances add (module notes of _budget)
+    from zoneprofile.diffusion.resolution import beam_variance_um2
+
+    s2_assumed = beam_variance_um2(problem.beam_um, problem.beam_shape)
+    s2_drawn = np.full(n_draws, s2_assumed)
+    beam_sd = 0.0
+    if problem.beam_um:
+        beam_sd = options.beam_sd_um
+        if beam_sd is None:
+            beam_sd = bud.DEFAULT_BEAM_SD_FRACTION * float(problem.beam_um)
+            defaults_used["beam_sd_um"] = (f"{beam_sd:.3g} µm ({bud.DEFAULT_BEAM_SD_FRACTION:.0%} of the "
+                                           f"{problem.beam_um:g} µm spot)")
+        beam_draw = np.abs(float(problem.beam_um) + beam_sd * bud.shared_normals(traverse_seed, n_draws, "beam"))
+        s2_drawn = np.array([beam_variance_um2(b, problem.beam_shape) for b in beam_draw]) if \
+            problem.beam_shape != "gaussian" else s2_assumed * (beam_draw / float(problem.beam_um)) ** 2
+    growth_sd = options.growth_width_sd_um
+    if growth_sd is None:
+        growth_sd = bud.DEFAULT_GROWTH_WIDTH_SD_UM
+        defaults_used["growth_width_sd_um"] = (f"half-normal, sd {growth_sd:g} µm (width of the boundary when "
+                                               "it grew)")
+    sg2 = bud.half_normal(ctx["seed"], n_draws, growth_sd, "growth width") ** 2
 
     # obliquity
     obl = None
@@ -316,7 +413,7 @@ def propagate(ctx) -> FitResult:
     if ctx["obliquity_deg"] is not None or ctx["dip_deg"] is not None:
         psi0 = float(ctx["obliquity_deg"] or 0.0)
         phi0 = 90.0 if ctx["dip_deg"] is None else float(ctx["dip_deg"])
-        psi = psi0 + ctx["obliquity_sd_deg"] * rng.standard_normal(n_draws)
+        psi = psi0 + ctx["obliquity_sd_deg"] * bud.shared_normals(traverse_seed, n_draws, "obliquity given")
         factor = (np.sin(np.radians(phi0)) * np.cos(np.radians(psi))) ** 2
         factor_best = (math.sin(math.radians(phi0)) * math.cos(math.radians(psi0))) ** 2
         obl = {"psi_deg": psi0, "psi_sd_deg": ctx["obliquity_sd_deg"], "phi_deg": phi0,
@@ -328,14 +425,38 @@ def propagate(ctx) -> FitResult:
                             "perpendicular to the section (φ = 90°), so the time may still be too long")
         if factor_best < 0.05:
             warnings.append("the traverse is nearly parallel to the boundary; the obliquity correction is huge")
+    elif options.section_obliquity and options.obliquity_default_sd_deg > 0:
+        theta = bud.section_obliquity_deg(traverse_seed, n_draws, sd_deg=options.obliquity_default_sd_deg,
+                                          max_deg=bud.MAX_OBLIQUITY_DEG)
+        factor = np.cos(np.radians(theta)) ** 2
+        factor_best = 1.0  # "best" is the fit at the stated conditions; the draws carry the prior
+        obl = {"psi_deg": None, "default_distribution": (
+            f"half-normal, sd {options.obliquity_default_sd_deg:g}°, cut at {bud.MAX_OBLIQUITY_DEG:g}°"),
+            "time_factor": factor_best, "formula": "t_true = t_apparent · cos²θ",
+            "log10_dt_m2_apparent": float(best[0]), "median_angle_deg": float(np.median(theta))}
+        defaults_used["section_obliquity"] = (
+            f"unknown angle of the boundary plane to the traverse: {obl['default_distribution']} "
+            "(switch off with section_obliquity=False / --no-section-obliquity)")
 
-    tau_m2 = 10.0**log_tau * factor
-    tau_best = 10.0 ** best[0] * factor_best
+    def corrected(log_fit, s2b, g2, fac):
+        """True D·t (m²) from the apparent one: beam, then obliquity, then growth width."""
+        dt = fac * (10.0**log_fit + 0.5e-12 * (s2_assumed - s2b)) - 0.5e-12 * g2
+        return np.maximum(dt, 10.0**log_lo)
+
+    tau_m2 = corrected(log_tau, s2_drawn, sg2, factor)
+    tau_best = float(corrected(np.array([best[0]]), s2_assumed, 0.0, factor_best)[0])
     comp = problem.law_composition(**problem.reference)
+    comp_draw = dict(comp)
+    fo2_note = None
+    if options.fo2_buffer is not None and "fo2_pa" in law.needs:
+        from zoneprofile.diffusion.laws.buffers import fo2_buffer_pa
+
+        comp_draw["fo2_pa"] = fo2_buffer_pa(options.fo2_buffer, t_draw, delta_log=options.fo2_delta_log)
+        fo2_note = f"fO2 follows {options.fo2_buffer.upper()} {options.fo2_delta_log:+g} with each drawn temperature"
 
     path = ctx["path"]
     if path is None:
-        d_draw = law.d_m2_s(t_draw, perturb=perturb or None, **comp)
+        d_draw = law.d_m2_s(t_draw, perturb=perturb or None, **comp_draw)
         time_days = tau_m2 / d_draw / SECONDS_PER_DAY
         best_days = tau_best / float(law.d_m2_s(t0, **comp)) / SECONDS_PER_DAY
     else:
@@ -351,9 +472,9 @@ def propagate(ctx) -> FitResult:
         warnings.append("non-isothermal path: the profile shape was modelled at the path's starting "
                         "temperature; only the integral of D along the path sets the time")
 
-    log_dt_draws = log_tau + np.log10(factor)
+    log_dt_draws = np.log10(tau_m2)
     ld = _percentiles(log_dt_draws)
-    ld["best"] = float(best[0] + math.log10(factor_best))
+    ld["best"] = float(math.log10(tau_best))
     ld["sd_noise"] = sd_noise
     td = _percentiles(time_days)
     td["best"] = float(best_days)
@@ -361,14 +482,15 @@ def propagate(ctx) -> FitResult:
     if n_inf:
         warnings.append(f"{n_inf} of {n_draws} draws give no finite time")
 
-    # --- resolution
+    # --- resolution (deterministic given the converged refits: a seed does not decide it)
     dt_um2 = 10.0 ** (best[0] + 12.0)
     res_var = ctx["resolution_var_um2"]
     p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
     floor_delta = ctx.get("floor_delta_chi2")
     step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
     # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
-    dt_low_um2 = 10.0 ** (best[0] + float(np.percentile(eps, 2.5)) + 12.0)
+    q_low = _mixture_quantile(0.025, sd_noise, shifts, wts)
+    dt_low_um2 = 10.0 ** (best[0] + q_low + 12.0)
     resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected
                     and not at_ceiling)
     if not step_rejected:
@@ -389,11 +511,15 @@ def propagate(ctx) -> FitResult:
                 "steps); this boundary gives no time for this element"
             )
         elif up is not None and path is None:
-            # profile-likelihood bound on D·t (95 %), spread by temperature (and obliquity)
-            ub_draws = 10.0 ** (up + g) * factor / law.d_m2_s(t_draw, perturb=perturb or None, **comp)
+            # profile-likelihood bound on D·t (95 %), spread by every other term of the budget
+            ub_m2 = corrected(up + g + log_partition + log_an, s2_drawn, sg2, factor)
+            ub_draws = ub_m2 / law.d_m2_s(t_draw, perturb=perturb or None, **comp_draw)
             td["upper_bound"] = float(np.percentile(ub_draws / SECONDS_PER_DAY, 97.5))
         else:
             td["upper_bound"] = td["p97_5"]
+        if td["upper_bound"] is not None and td["p97_5"] is not None:
+            # one statement: the interval drawn never reaches above the bound stated
+            td["upper_bound"] = max(td["upper_bound"], td["p97_5"])
         if td["upper_bound"] is not None:
             warnings.append(
                 f"the relaxed width (√(2·D·t) = {math.sqrt(2 * dt_um2):.2g} µm) is not larger than the "
@@ -402,21 +528,57 @@ def propagate(ctx) -> FitResult:
             )
     else:
         td["upper_bound"] = None
+    td.setdefault("lower_bound", None)
+    td["statement"] = "date" if resolved else ("upper_bound" if td["upper_bound"] is not None else "none")
 
     # --- uncertainty budget (sd of log10 time from each source alone)
-    budget = {"analytical_noise": float(np.std(eps)) if n_draws > 1 else 0.0}
+    def sd_of(v):
+        v = np.asarray(v, float)
+        v = v[np.isfinite(v)]
+        return float(np.std(v)) if v.size > 1 else 0.0
+
+    log_best = math.log10(tau_best)
+    budget = {"analytical_noise": sd_of(eps)}
     if t_sd > 0:
-        d_t = np.log10(law.d_m2_s(t_draw, **comp))
-        budget["temperature"] = float(np.std(g - d_t))
+        budget["temperature"] = sd_of(g - np.log10(law.d_m2_s(t_draw, **comp_draw)))
     else:
         budget["temperature"] = 0.0
-    if perturb:
-        budget["law_parameters"] = float(np.std(np.log10(law.d_m2_s(t0, perturb=perturb, **comp))))
-    else:
-        budget["law_parameters"] = 0.0
-    budget["obliquity"] = float(np.std(np.log10(factor))) if obl else 0.0
+    budget["law_parameters"] = sd_of(np.log10(law.d_m2_s(t0, perturb=perturb, **comp))) if perturb else 0.0
+    spread = bud.law_spread(law, t0, comp) if options.law_spread else None
+    budget["law_spread_systematic"] = 0.0 if spread is None else spread["sd_log10"]
+    budget["partition_coefficients"] = sd_of(log_partition)
+    budget["an_noise"] = sd_of(log_an)
+    budget["beam_size"] = sd_of(np.log10(corrected(np.full(n_draws, best[0]), s2_drawn, 0.0, factor_best))
+                                - log_best)
+    budget["growth_width"] = sd_of(np.log10(corrected(np.full(n_draws, best[0]), s2_assumed, sg2, factor_best))
+                                   - log_best)
+    budget["obliquity"] = sd_of(np.log10(factor)) if obl else 0.0
     budget["total"] = float(np.std(np.log10(time_days[np.isfinite(time_days) & (time_days > 0)]))) \
         if np.any(np.isfinite(time_days)) else None
+    law_choice = None
+    if spread is not None:
+        # the systematic term as an interval of its own (not in time_days: see _budget notes)
+        z_law = bud.shared_normals(shared_seed, n_draws, "between-law spread")
+        wide = time_days * 10.0 ** (-spread["sd_log10"] * z_law)
+        wide = wide[np.isfinite(wide)]
+        law_choice = {**spread, "time_days_p2_5": float(np.percentile(wide, 2.5)) if wide.size else None,
+                      "time_days_p97_5": float(np.percentile(wide, 97.5)) if wide.size else None,
+                      "in_time_days": False}
+    n_floor = int(np.sum(tau_m2 <= 10.0**log_lo * (1 + 1e-9)))
+    if n_floor > 0.025 * n_draws and resolved:
+        warnings.append(f"{n_floor} of {n_draws} draws leave no diffusion once the beam and the growth width "
+                        "of the boundary are allowed for: the lower end of the interval is open")
+    if fo2_note:
+        defaults_used.setdefault("fo2", fo2_note)
+    for what, text in defaults_used.items():
+        if what == "fo2":
+            continue
+        warnings.append(f"stated default used for {_DEFAULT_LABELS.get(what, what)}: {text}")
+    budget_info = {"defaults_used": defaults_used, "law_choice": law_choice,
+                   "shared_seed": shared_seed, "traverse_seed": traverse_seed,
+                   "beam_sd_um": beam_sd, "growth_width_sd_um": growth_sd,
+                   "partition_a_sd_j_mol": a_sd or None, "fo2_buffer": options.fo2_buffer,
+                   "fo2_delta_log": options.fo2_delta_log if options.fo2_buffer else None}
 
     # --- curves for plotting
     x = problem.x_um
@@ -445,5 +607,5 @@ def propagate(ctx) -> FitResult:
         initial=initial, band_low=band_low, band_high=band_high, data_distance_um=x.copy(),
         data_value=problem.y.copy(), data_model=ctx["pred"], residuals=problem.y - ctx["pred"],
         uncertainty_budget=budget, obliquity=obl, temperature_nodes=nodes, draws=n_draws,
-        noise_method=noise_method,
+        noise_method=noise_method, budget_info=budget_info,
     )

@@ -89,7 +89,7 @@ class ZoneGrid:
 
 
 class AnZones:
-    """Frozen An on the grid: inside each zone, the measured An interpolated; a sharp step at each boundary.
+    """Frozen An on the grid: inside each zone a straight line through its An points; a sharp step at each boundary.
 
     The points belonging to each zone are chosen once (at the start
     positions), keeping those more than ``guard_um`` from the zone's edges when
@@ -114,7 +114,12 @@ class AnZones:
                 centre = 0.5 * (max(lo, ax.min()) + min(hi, ax.max()))
                 pick = np.zeros(ax.size, bool)
                 pick[int(np.argmin(np.abs(ax - centre)))] = True
-            self.zones.append((ax[pick], av[pick]))
+            zx, zv = ax[pick], av[pick]
+            if zx.size >= 4:
+                # a straight line through the zone's points: the zone's own trend, not its noise
+                coef = np.polyfit(zx - zx.mean(), zv, 1)
+                zv = np.polyval(coef, zx - zx.mean())
+            self.zones.append((zx, zv))
         self.x_ref = float(np.mean(av))
 
     def cells(self, centres_um, zone_of_cells):

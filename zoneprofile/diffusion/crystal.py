@@ -321,6 +321,11 @@ def _statements(obj, x, chi2, s2, res_var_um2, d_max):
         if open_high and not open_low:
             # lower bound: the smallest value still within Δχ² < 3.84, coming from below
             info["lower_x"] = _crossing(lambda v: -dchi2(v), low_end, x[j], -DELTA_CHI2_95)
+        if not open_low and not open_high:
+            # the likelihood-ratio interval on each side (a Gaussian in log time can be far too
+            # narrow on the side where the profile approaches the resolution or equilibrium)
+            info["lr_low"] = _crossing(lambda v: -dchi2(v), low_end, x[j], -DELTA_CHI2_95, iters=7)
+            info["lr_high"] = _crossing(lambda v: dchi2(v), x[j], hi[j], DELTA_CHI2_95, iters=7)
         out.append(info)
     return out
 
@@ -592,6 +597,13 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         xs = x + (z * np.sqrt(np.clip(vals, 0.0, None))) @ vecs.T
         lo_t, hi_t = obj.log_bounds
         for j, st in enumerate(statements):
+            if st.get("lr_low") is not None:
+                # stretch each side of the draws to at least the likelihood-ratio interval
+                sd_m = math.sqrt(max(cov[j, j], 1e-300))
+                dev = xs[:, j] - x[j]
+                s_lo = max(1.0, (x[j] - st["lr_low"]) / (_Z975 * sd_m))
+                s_hi = max(1.0, (st["lr_high"] - x[j]) / (_Z975 * sd_m))
+                xs[:, j] = x[j] + np.where(dev < 0, dev * s_lo, dev * s_hi)
             # a time left open on one side: its draws stay on the side the data allow
             lo_j = lo_t if st["lower_x"] is None else st["lower_x"]
             hi_j = hi_t if st["upper_x"] is None else st["upper_x"]

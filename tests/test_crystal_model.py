@@ -10,6 +10,7 @@ Numerical Heat Transfer and Fluid Flow, §4.2), and scipy's ``expm_multiply`` in
 The spot is a Gaussian kernel summed over the fine nodes.
 """
 
+import functools
 import math
 
 import numpy as np
@@ -82,7 +83,7 @@ def test_fit_one_boundary_erf_profile_recovers_time():
 
 
 # --------------------------------------------------------------------------- reference solver
-def _reference_crystal(positions, ages, an_zones, melts, element, temperature_c, end=170.0, h=0.1):
+def _reference_crystal(positions, ages, an_zones, melts, element, temperature_c, end=170.0, h=0.2):
     """Final concentration on fine nodes for zones grown at ``ages`` (oldest first), open rim."""
     law = default_law(element, "plagioclase")
     a_j, b_j = partition_parameters(element)
@@ -136,6 +137,7 @@ def _spots(x_fine, c_fine, x_pts, fwhm):
     return (w @ c_fine) / w.sum(axis=1)
 
 
+@functools.lru_cache(maxsize=None)
 def _three_event_case(seed, ages=(400.0, 80.0, 7.0)):
     positions = [110.0, 60.0, 15.0]
     an_zones = [60.0, 78.0, 55.0, 72.0]  # core ... rim zone
@@ -148,7 +150,7 @@ def _three_event_case(seed, ages=(400.0, 80.0, 7.0)):
         y = _spots(xf, cf, x, 4.0)
         y = y * (1 + 0.02 * rng.standard_normal(y.size))
         profiles[el] = {"distance_um": x, "value": y, "beam_um": 4.0}
-    xf = (np.arange(1700) + 0.5) * 0.1
+    xf = (np.arange(850) + 0.5) * 0.2
     zone = np.zeros(xf.size, int)
     for k, p in enumerate(positions):
         zone[xf < p] = k + 1
@@ -253,3 +255,66 @@ def test_plagioclase_trace_element_needs_an():
     prof = {"Mg": {"distance_um": x, "value": np.where(x > 50, 80.0, 40.0)}}
     with pytest.raises(InputError, match="need An"):
         fit_crystal(prof, mineral="plagioclase", positions_um=[50.0], temperature_c=850.0)
+
+
+# --------------------------------------------------------------------------- command line
+@pytest.fixture(scope="module")
+def crystal_csv(tmp_path_factory):
+    import pandas as pd
+
+    profiles, x, an, _, _ = _three_event_case(11)
+    path = tmp_path_factory.mktemp("crystal") / "crystal.csv"
+    pd.DataFrame({"distance_um": x, "Mg_ppm": profiles["Mg"]["value"], "Sr_ppm": profiles["Sr"]["value"],
+                  "An": an}).to_csv(path, index=False)
+    return path
+
+
+def _run(capsys, *argv):
+    """The command in this process (the subprocess route is tested for ``fit`` elsewhere)."""
+    from zoneprofile.cli import main
+
+    code = main([str(a) for a in argv])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def _cli(capsys, path, out, *extra):
+    return _run(capsys, "fit", path, "--crystal", "--element", "Mg,Sr", "--mineral", "plagioclase",
+                "--temperature-c", "850", "--temperature-sd-c", "10", "--beam-um", "4", "-o", out, *extra)
+
+
+def test_cli_crystal_writes_record(crystal_csv, tmp_path, capsys):
+    import json
+
+    out = tmp_path / "C.json"
+    code, stdout, err = _cli(capsys, crystal_csv, out, "--boundary-um", "15", "110", "60")
+    assert code == 0, err
+    rec = json.loads(out.read_text())["crystal_model"]
+    assert [b["id"] for b in rec["boundaries"]] == ["B1", "B2", "B3"]
+    assert rec["boundaries"][0]["position_um"] > rec["boundaries"][1]["position_um"]  # oldest (innermost) first
+    assert rec["elements"] == ["Mg", "Sr"] and rec["method"] == "whole-crystal" and len(rec["gaps"]) == 2
+    for b in rec["boundaries"]:
+        assert set(b["age_days"]) == {"median", "p2_5", "p97_5", "statement", "upper_bound", "lower_bound"}
+        assert set(b["by_element"]) == {"Mg", "Sr"}
+    assert "Whole-crystal model" in stdout and "hazard" in stdout
+
+
+@pytest.mark.parametrize("extra, words", [
+    ((), "--boundary-um"),
+    (("--boundary-um", "60", "61"), "closer than twice the resolution"),
+    (("--boundary-um", "60", "--path", "p.csv"), "--path is not available with --crystal"),
+    (("--boundary-um", "60", "60"), "given twice"),
+    (("--boundary-um", "500"), "outside the profile"),
+])
+def test_cli_crystal_bad_input(crystal_csv, tmp_path, capsys, extra, words):
+    out = tmp_path / "C.json"
+    code, _, err = _cli(capsys, crystal_csv, out, *extra)
+    assert code == 2 and words in err and len(err.strip().splitlines()) == 1, err
+    assert not out.exists()
+
+
+def test_cli_crystal_element_without_law(crystal_csv, tmp_path, capsys):
+    out = tmp_path / "C.json"
+    code, _, err = _run(capsys, "fit", crystal_csv, "--crystal", "--element", "Mg,Ba", "--mineral", "plagioclase",
+                           "--temperature-c", "850", "--boundary-um", "60", "-o", out)
+    assert code == 2 and len(err.strip().splitlines()) == 1 and not out.exists(), err

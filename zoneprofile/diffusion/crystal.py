@@ -119,6 +119,9 @@ def _fmt(s):
 class _Objective:
     """Weighted residuals of the data given ``x`` (log10 youngest age, log10 gaps, positions)."""
 
+    #: forward evaluations of one element, all objectives together (for the benchmark)
+    element_evaluations = 0
+
     def __init__(self, zgrid, an_zones, an_data, elements, temperature_c, rim, positions0, window, log_bounds):
         self.zgrid = zgrid
         self.an_zones = an_zones
@@ -194,6 +197,7 @@ class _Objective:
 
     def residuals(self, x):
         self.n_eval += 1
+        _Objective.element_evaluations += len(self.elements)
         states, x_an, faces = self.state(x)
         parts = []
         for em, (pred, _c, _b, _f) in zip(self.elements, states):
@@ -219,7 +223,7 @@ def _least_squares(obj, x0, lo, hi, max_nfev=300):
     return sol.x, sol
 
 
-def _coarse_start(obj, x0, lo, hi, cycles=2, nodes=13):
+def _coarse_start(obj, x0, lo, hi, cycles=2, nodes=9):
     """Coordinate scans of each log time over its range (positions fixed), ``cycles`` times."""
     x = np.array(x0, float)
     best = obj.chi2(x)
@@ -280,7 +284,7 @@ def _laplace(obj, x, r, known_sd, fixed=()):
         h = jf.T @ jf
         cov_f = s2 * np.linalg.pinv(h, rcond=1e-12)
         cov[np.ix_(free, free)] = cov_f
-    return cov, s2
+    return cov, s2, jac
 
 
 def _crossing(f, a, b, level, iters=10):
@@ -295,7 +299,30 @@ def _crossing(f, a, b, level, iters=10):
     return 0.5 * (a + b)
 
 
-def _statements(obj, x, chi2, s2, res_var_um2, d_max):
+def _secant_crossing(dchi2, x0, v1, limit, iters=3):
+    """Where the conditional Δχ² reaches 3.84 on the side of ``v1`` (within ``limit``).
+
+    For a quadratic Δχ², √Δχ² is linear in the distance from the optimum, so a
+    secant on √Δχ² − 1.96 from the optimum (where it is −1.96) converges in a
+    few steps; it stays inside ``[x0, limit]``, where Δχ² at ``limit`` is known
+    to exceed 3.84.
+    """
+    lo_v, lo_g = x0, -_Z975
+    v = float(np.clip(v1, min(x0, limit), max(x0, limit)))
+    for _ in range(iters):
+        g = math.sqrt(max(dchi2(v), 0.0)) - _Z975
+        if abs(g) < 0.05 or v == limit:
+            break
+        if g == lo_g:
+            break
+        nxt = lo_v + (v - lo_v) * (-lo_g) / (g - lo_g)
+        if g < 0:
+            lo_v, lo_g = v, g
+        v = float(np.clip(nxt, min(x0, limit), max(x0, limit)))
+    return v
+
+
+def _statements(obj, x, chi2, s2, res_var_um2, d_max, sd_c=None):
     """Per time parameter: 'date', 'upper_bound', 'lower_bound' or 'none', and the crossing values.
 
     The conditional Δχ² (melt values refitted, the other parameters held) at
@@ -317,15 +344,16 @@ def _statements(obj, x, chi2, s2, res_var_um2, d_max):
         open_high = x[j] >= hi[j] - 0.05 or dchi2(hi[j]) < DELTA_CHI2_95
         info = {"open_low": bool(open_low), "open_high": bool(open_high), "upper_x": None, "lower_x": None}
         if open_low and not open_high:
-            info["upper_x"] = _crossing(lambda v: dchi2(v), x[j], hi[j], DELTA_CHI2_95)
+            info["upper_x"] = _crossing(lambda v: dchi2(v), x[j], hi[j], DELTA_CHI2_95, iters=7)
         if open_high and not open_low:
             # lower bound: the smallest value still within Δχ² < 3.84, coming from below
-            info["lower_x"] = _crossing(lambda v: -dchi2(v), low_end, x[j], -DELTA_CHI2_95)
+            info["lower_x"] = _crossing(lambda v: -dchi2(v), low_end, x[j], -DELTA_CHI2_95, iters=7)
         if not open_low and not open_high:
             # the likelihood-ratio interval on each side (a Gaussian in log time can be far too
             # narrow on the side where the profile approaches the resolution or equilibrium)
-            info["lr_low"] = _crossing(lambda v: -dchi2(v), low_end, x[j], -DELTA_CHI2_95, iters=7)
-            info["lr_high"] = _crossing(lambda v: dchi2(v), x[j], hi[j], DELTA_CHI2_95, iters=7)
+            step = _Z975 * (sd_c[j] if sd_c is not None and np.isfinite(sd_c[j]) and sd_c[j] > 0 else 0.3)
+            info["lr_low"] = _secant_crossing(dchi2, x[j], x[j] - step, low_end)
+            info["lr_high"] = _secant_crossing(dchi2, x[j], x[j] + step, hi[j])
         out.append(info)
     return out
 
@@ -590,8 +618,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         obl_info = {"kind": "measured", "deg": float(obliquity)}
 
     # ---- per-element summaries (own ages)
-    def fit_draws(obj, x, r, s2_known, statements):
-        cov, _ = _laplace(obj, x, r, s2_known)
+    def fit_draws(obj, x, cov, statements):
         vals, vecs = np.linalg.eigh(cov)
         z = rng.standard_normal((draws, x.size))
         xs = x + (z * np.sqrt(np.clip(vals, 0.0, None))) @ vecs.T
@@ -644,8 +671,11 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         if not known:
             dof = max(r.size - x.size, 1)
             s2 = max(chi2 / dof, 1e-300)
-        sts = _statements(obj, x, chi2, s2, res_var, d_max)
-        young, gaps, cov = fit_draws(obj, x, r, known, sts)
+        cov, _, jac = _laplace(obj, x, r, known)
+        # conditional sd of each time (the others held): the first secant step of the LR checks
+        sd_c = np.sqrt(s2 / np.maximum(np.sum(jac * jac, axis=0), 1e-300))
+        sts = _statements(obj, x, chi2, s2, res_var, d_max, sd_c=sd_c)
+        young, gaps, cov = fit_draws(obj, x, cov, sts)
         ages, g_scaled = ages_from(young, gaps, f_event * obl_factor[:, None])
         # event k's own time parameter: young for the last event, gap k for the others
         age_s, gap_s, info = [], [], []

@@ -94,6 +94,7 @@ BUILTIN = {
     "pressure_mpa": None,
     "solver_cells": None,
     "sheet": None,
+    "model": "boundary",
     "comment": "",
 }
 
@@ -101,7 +102,7 @@ _TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache"
 _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
     "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
-    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "comment",
+    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "model", "comment",
 )
 _CRYSTAL_KEYS = _SETTING_KEYS + (
     "sample", "id", "traverse", "trace", "map", "spots", "line", "pixel_um", "channel", "width_px", "rim_normal",
@@ -315,6 +316,8 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = _text(ctx, value, w, choices=("gaussian", "square"))
         elif key == "rim":
             out[key] = _text(ctx, value, w, choices=("start", "end"))
+        elif key == "model":
+            out[key] = _text(ctx, value, w, choices=("boundary", "crystal"))
         elif key == "stage_units":
             out[key] = _text(ctx, value, w, choices=("um", "mm"))
         elif key == "boundaries":
@@ -559,6 +562,8 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
             params["rim_normal"] = _boolean(ctx, table["rim_normal"], where + ("rim_normal",))
         params["draws"] = draws
         params["seed"] = crystal_seed(seed, sample, crystal)
+        if params.get("model") == "crystal":
+            params["campaign_seed"] = seed  # the whole-crystal model draws temperatures per sample
         crystals.append(CrystalSpec(sample, crystal, i, ctx.lines.line_of(where), inputs, params))
 
     return Campaign(

@@ -558,3 +558,11 @@ def _stages(task, record, transient):
             return crystal_intervals(fitted)
 
         record["recharge_intervals_days"] = _run_stage("intervals", intervals, timing=timing)
+
+    # 7. the whole-crystal model (model = "crystal"): never fails the crystal, warns instead
+    if params.get("model") == "crystal" and boundaries:
+        from zoneprofile.campaign._crystal_stage import crystal_stage
+
+        _run_stage("crystal model", crystal_stage, record, boundaries, params, task, table=table, trace=trace,
+                   map_profile=map_profile, an=an, an_x=an_x, an_beam=an_beam, timing=timing,
+                   map_obliquity=[b.get("obliquity_deg") for b in map_bounds])

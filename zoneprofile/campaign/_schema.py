@@ -100,6 +100,7 @@ BUILTIN = {
     "fo2_delta_log": 0.0,
     "partition_a_sd_j_mol": None,
     "sheet": None,
+    "model": "boundary",
     "comment": "",
 }
 
@@ -107,7 +108,7 @@ _TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache"
 _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
     "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
-    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "comment",
+    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "model", "comment",
     "section_obliquity", "beam_sd_um", "growth_width_sd_um", "fo2_buffer", "fo2_delta_log", "partition_a_sd_j_mol",
 )
 _CRYSTAL_KEYS = _SETTING_KEYS + (
@@ -328,6 +329,8 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = _text(ctx, value, w, choices=("gaussian", "square"))
         elif key == "rim":
             out[key] = _text(ctx, value, w, choices=("start", "end"))
+        elif key == "model":
+            out[key] = _text(ctx, value, w, choices=("boundary", "crystal"))
         elif key == "stage_units":
             out[key] = _text(ctx, value, w, choices=("um", "mm"))
         elif key == "boundaries":
@@ -585,6 +588,8 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         params["draws"] = draws
         params["seed"] = crystal_seed(seed, sample, crystal)
         params["sample_seed"] = _sample_seed(seed, sample)
+        if params.get("model") == "crystal":
+            params["campaign_seed"] = seed  # the whole-crystal model draws temperatures per sample
         crystals.append(CrystalSpec(sample, crystal, i, ctx.lines.line_of(where), inputs, params))
 
     return Campaign(

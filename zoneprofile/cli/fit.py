@@ -93,6 +93,9 @@ def configure(parser):
     parser.add_argument("-o", "--output", required=True, metavar="FIT.json", help="results (JSON)")
     parser.add_argument("--plot", metavar="FIG", help="figure of data, fit, initial profile and band (.png/.svg/.pdf)")
     parser.add_argument("--force", action="store_true", help="overwrite existing outputs")
+    parser.add_argument("--crystal", action="store_true",
+                        help="date all --boundary-um boundaries in one whole-crystal model (zones grown event by "
+                             "event; --element may list several elements, e.g. Mg,Sr, fitted with shared ages)")
 
 
 def _value_column(frame_columns, element, mineral, path):
@@ -182,6 +185,10 @@ def _import_lmfit_lean():
 
 
 def run(args):
+    if getattr(args, "crystal", False):
+        from zoneprofile.cli._fit_crystal import run_crystal
+
+        return run_crystal(args)
     import math
     from pathlib import Path
 

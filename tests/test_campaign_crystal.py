@@ -1,0 +1,86 @@
+"""Campaigns with ``model = "crystal"``: the key, and the whole-crystal model inside a crystal's record."""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from zoneprofile._validation import InputError
+from zoneprofile.campaign import load_campaign
+
+CAMPAIGN = """\
+title = "t"
+seed = 3
+draws = 200
+
+[defaults]
+mineral = "plagioclase"
+elements = ["Mg"]
+temperature_c = 1000
+model = "{model}"
+
+[samples.S1]
+comment = "one sample"
+
+[[crystals]]
+sample = "S1"
+id = "c1"
+traverse = "c1.csv"
+"""
+
+
+def _write(folder, model):
+    (folder / "c1.csv").write_text("x\n1\n")
+    path = folder / "camp.toml"
+    path.write_text(CAMPAIGN.format(model=model))
+    return path
+
+
+def test_model_key_default_boundary_and_crystal(tmp_path):
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    c = load_campaign(_write(tmp_path / "a", "crystal"))
+    assert c.crystals[0].parameters["model"] == "crystal"
+    assert "campaign_seed" in c.crystals[0].parameters  # per-sample temperature draws
+    text = CAMPAIGN.replace('model = "{model}"\n', "")
+    (tmp_path / "b" / "c1.csv").write_text("x\n1\n")
+    (tmp_path / "b" / "camp.toml").write_text(text)
+    assert load_campaign(tmp_path / "b" / "camp.toml").crystals[0].parameters["model"] == "boundary"
+
+
+def test_model_key_bad_value_names_line(tmp_path):
+    with pytest.raises(InputError) as exc:
+        load_campaign(_write(tmp_path, "whole"))
+    assert "line 9" in str(exc.value) and "model" in str(exc.value)
+
+
+@pytest.mark.slow
+def test_demo_crystals_get_a_whole_crystal_record(tmp_path):
+    """Two demo crystals (invented, seeded) run with the crystal model: ids oldest first, truth inside."""
+    import json
+
+    from zoneprofile.campaign._run import build_tasks
+    from zoneprofile.campaign._pipeline import process_crystal
+    from zoneprofile.demo import make_demo
+
+    make_demo(tmp_path, n_crystals=2, draws=300)
+    toml = next(tmp_path.glob("*.toml"))
+    text = toml.read_text()
+    text = re.sub(r'^mineral = "plagioclase"', 'mineral = "plagioclase"\nmodel = "crystal"', text, flags=re.M)
+    toml.write_text(text)
+    truth = json.loads((tmp_path / "truth.json").read_text())
+    events = sorted(e["time_days"] for e in truth["events"])
+    camp = load_campaign(toml)
+    for task in build_tasks(camp):
+        rec = process_crystal(task)
+        assert rec["error"] is None
+        cm = rec["crystal_model"]
+        assert cm is not None and cm["method"] == "whole-crystal"
+        pos = [b["position_um"] for b in cm["boundaries"]]
+        assert pos == sorted(pos, reverse=True)
+        for b in cm["boundaries"]:
+            s = b["age_days"]
+            if s["statement"] == "date":
+                # some recharge of the invented history lies inside each dated interval
+                assert any(s["p2_5"] <= t <= s["p97_5"] for t in events), (b, events)

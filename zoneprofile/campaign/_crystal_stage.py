@@ -1,0 +1,85 @@
+"""The whole-crystal model as a campaign stage (``model = "crystal"``).
+
+Runs after the per-boundary fits of a crystal and writes
+``record["crystal_model"]`` (keys in ``docs/whole-crystal-model.md``). It never
+fails the crystal: a crystal the model cannot take (boundaries closer than the
+resolution, an element without a law, ...) keeps its per-boundary fits and
+gets one plain warning saying why the whole-crystal model was not run.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from zoneprofile._validation import InputError
+
+__all__ = ["crystal_stage"]
+
+
+def _element_data(name, params, table, trace, map_profile):
+    """(x, values, beam, shape) for one value column, from the same source the per-boundary fits use."""
+    from zoneprofile.campaign._pipeline import _column
+
+    if table is not None and _column(table, name) is not None:
+        return (np.asarray(table["distance_um"], float), _column(table, name), params.get("beam_um"),
+                params.get("beam_shape", "gaussian"))
+    if trace is not None and _column(trace, name) is not None:
+        return (np.asarray(trace["distance_um"], float), _column(trace, name), params.get("trace_beam_um"),
+                params.get("trace_beam_shape", "square"))
+    if map_profile is not None and _column(map_profile, name) is not None:
+        return np.asarray(map_profile["distance_um"], float), _column(map_profile, name), None, "gaussian"
+    return None
+
+
+def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile, an, an_x, an_beam,
+                  map_obliquity=()):
+    """Fit the whole-crystal model to a crystal's dated boundaries; the result goes into ``record``."""
+    from zoneprofile.campaign._schema import MINERALS
+    from zoneprofile.diffusion.crystal import fit_crystal
+    from zoneprofile.diffusion.draws import sample_seed
+
+    record["crystal_model"] = None
+    mineral = task["mineral"]
+    positions = sorted({float(b["position_um"]) for b in boundaries}, reverse=True)
+    if not positions:
+        return None
+    profiles = {}
+    missing = []
+    for element in params["elements"]:
+        data = _element_data(MINERALS[mineral]["value"][element], params, table, trace, map_profile)
+        if data is None:
+            missing.append(element)
+            continue
+        x, v, beam, shape = data
+        keep = np.isfinite(x) & np.isfinite(v)
+        profiles[element] = {"distance_um": x[keep], "value": v[keep], "beam_um": beam, "beam_shape": shape}
+    if missing:
+        record["warnings"].append(f"whole-crystal model: no values for {', '.join(missing)}; fitted without")
+    if not profiles:
+        record["warnings"].append("whole-crystal model not run: no element values in the inputs")
+        return None
+    obliquity = params.get("obliquity_deg")
+    measured = [float(v) for v in map_obliquity or () if v is not None]
+    if measured:
+        # one traverse, one angle: the median of the angles the map measured at its boundaries
+        obliquity = float(np.median(measured))
+    try:
+        result = fit_crystal(
+            profiles, mineral=mineral, positions_um=positions, temperature_c=params["temperature_c"],
+            temperature_sd_c=params.get("temperature_sd_c", 0.0), an_distance_um=an_x, an=an, an_beam_um=an_beam,
+            laws={el: law for el, law in (params.get("laws") or {}).items() if el in profiles} or None,
+            draws=int(params["draws"]), seed=int(params["seed"]),
+            temperature_seed=sample_seed(int(params.get("campaign_seed", 0)), task["sample"]),
+            obliquity="section" if obliquity is None else float(obliquity),
+            fo2_pa=params.get("fo2_pa"), pressure_mpa=params.get("pressure_mpa"))
+    except (KeyboardInterrupt, SystemExit, MemoryError):
+        raise
+    except InputError as exc:
+        record["warnings"].append(f"whole-crystal model not run: {' '.join(str(exc.message).split())}")
+        return None
+    except Exception as exc:  # noqa: BLE001 - the per-boundary fits stand; say what happened
+        text = " ".join(str(exc).split()) or type(exc).__name__
+        record["warnings"].append(f"whole-crystal model not run: internal error ({type(exc).__name__}): {text}")
+        return None
+    record["crystal_model"] = result.to_record()
+    return record["crystal_model"]

@@ -77,9 +77,9 @@ def _plan_crystal(rng, events):
     core = rng.uniform(50.0, 58.0)
     zones = [{"an_inner": core + rng.uniform(1.0, 3.0), "an_outer": core}]  # inner = deeper side
     for j in range(n):
-        top = rng.uniform(71.0, 80.0)
-        width = depths[j] - (depths[j + 1] if j + 1 < n else 0.0)
-        zones.append({"an_inner": top, "an_outer": top - min(0.08 * width, rng.uniform(5.0, 9.0))})
+        # each recharge is a reverse step of 7–12 mol% An above the zone it grew on (at most An 88)
+        top = min(zones[-1]["an_outer"] + rng.uniform(7.0, 12.0), 88.0) if j else rng.uniform(70.0, 78.0)
+        zones.append({"an_inner": top, "an_outer": top - rng.uniform(7.0, 11.0)})   # normal zoning outward
     return zones, depths
 
 

@@ -44,7 +44,7 @@ def test_campaign_recovers_a_known_recharge_history(tmp_path):
     s = S.score(results, truth)
     report = S.format_report(s)
     f = s["figures"]
-    assert s["sources"] == ["crystal_model"], report
+    assert "crystal_model" in s["sources"], report
     assert f["boundaries_dated_true"] >= 0.90, report
     assert f["statements_consistent"] >= 0.90, report
     assert f["crystals_gaps_true"] >= 0.90, report

@@ -77,9 +77,15 @@ def _plan_crystal(rng, events):
     core = rng.uniform(50.0, 58.0)
     zones = [{"an_inner": core + rng.uniform(1.0, 3.0), "an_outer": core}]  # inner = deeper side
     for j in range(n):
-        # each recharge is a reverse step of 7–12 mol% An above the zone it grew on (at most An 88)
-        top = min(zones[-1]["an_outer"] + rng.uniform(7.0, 12.0), 88.0) if j else rng.uniform(70.0, 78.0)
-        zones.append({"an_inner": top, "an_outer": top - rng.uniform(7.0, 11.0)})   # normal zoning outward
+        # each recharge is a reverse step of 7–11 mol% An above the zone it grew on (An at most 90);
+        # inside a zone, normal zoning outward at 0.05–0.6 mol% per µm (log-uniform), at most 5–9 mol%:
+        # a thin young rim zone may fall back steeply after its step, or hardly at all
+        top = min(zones[-1]["an_outer"] + rng.uniform(7.0, 11.0), 90.0) if j else rng.uniform(68.0, 74.0)
+        if top - zones[-1]["an_outer"] < 7.0:
+            zones[-1]["an_outer"] = top - rng.uniform(7.0, 9.0)
+        width = depths[j] - (depths[j + 1] if j + 1 < n else 0.0)
+        rate = float(np.exp(rng.uniform(np.log(0.05), np.log(0.6))))
+        zones.append({"an_inner": top, "an_outer": top - min(rate * width, rng.uniform(5.0, 9.0))})
     return zones, depths
 
 

@@ -135,6 +135,7 @@ def score(results: dict, truth: dict) -> dict:
     crystals_ok = crystals_gap = 0
     sources = set()
     failures = []
+    by_event = {}
     for key, tc in truth_by_key.items():
         rec = records.get(key)
         tb = tc["boundaries"]
@@ -143,7 +144,9 @@ def score(results: dict, truth: dict) -> dict:
             crystals_gap += 1
         if rec is None or rec.get("error"):
             failures.append(f"{key[0]}/{key[1]}: no result" + (f" ({rec['error']})" if rec else ""))
-            statements["total"] += 0
+            for b in tb:
+                ev = by_event.setdefault(b["event"], {"boundaries": 0, "found": 0, "dated": 0, "dated_true": 0})
+                ev["boundaries"] += 1
             continue
         fitted, source = _fitted_boundaries(rec)
         sources.add(source)
@@ -171,10 +174,15 @@ def score(results: dict, truth: dict) -> dict:
         for b in tb:
             found = matched.get(b["id"], [])
             dates = [st for by_el, _ in found for st in by_el.values() if st["kind"] == "date"]
+            ev = by_event.setdefault(b["event"], {"boundaries": 0, "found": 0, "dated": 0, "dated_true": 0})
+            ev["boundaries"] += 1
+            ev["found"] += bool(found)
+            ev["dated"] += bool(dates)
             if dates:
                 n_dated_any += 1
             if any(consistent(st, b["age_days"]) for st in dates):
                 n_dated_ok += 1
+                ev["dated_true"] += 1
             else:
                 failures.append(f"{key[0]}/{key[1]} {b['id']} ({b['event']}, {b['age_days']:.3g} d at "
                                 f"{b['position_um']:.1f} µm): " + (_describe(found) if found else "not found"))
@@ -204,6 +212,7 @@ def score(results: dict, truth: dict) -> dict:
     }
     return {
         "figures": figures,
+        "by_event": dict(sorted(by_event.items())),
         "counts": {"boundaries": n_bound, "dated_true": n_dated_ok, "dated_any": n_dated_any,
                    "joint_dated": n_joint, "joint_true": n_joint_ok,
                    "statements": statements, "crystals_with_gaps": crystals_gap, "crystals_gaps_true": crystals_ok},
@@ -308,6 +317,9 @@ def format_report(s: dict) -> str:
         f"1. recharge boundaries dated with the truth inside the 95 % interval: {_pct(f['boundaries_dated_true'])} "
         f"({c['dated_true']}/{c['boundaries']}; dated at all {c['dated_any']}/{c['boundaries']}) [goal ≥ 90 %]",
     ]
+    lines.append("   by event: " + "; ".join(
+        f"{e} found {v['found']}/{v['boundaries']}, dated {v['dated']}, truth inside {v['dated_true']}"
+        for e, v in s["by_event"].items()))
     if f["joint_age_true"] is not None:
         lines.append(f"   joint (all elements) ages with the truth inside: {_pct(f['joint_age_true'])} "
                      f"({c['joint_true']}/{c['joint_dated']})")

@@ -231,3 +231,21 @@ def test_score_reads_statements_both_ways():
     s = S.score(results, truth)
     assert s["figures"]["boundaries_dated_true"] == 0.0
     assert s["counts"]["statements"]["unmatched"] == 3
+
+
+def test_tools_refuse_bad_input_with_one_line(tmp_path, capsys):
+    from tests.validation import population
+
+    busy = tmp_path / "busy"
+    busy.mkdir()
+    (busy / "keep.txt").write_text("mine")
+    assert population.main(["--seed", "1", "--out", str(busy)]) == 2
+    assert (busy / "keep.txt").read_text() == "mine" and len(list(busy.iterdir())) == 1   # nothing written
+    assert S.main([str(tmp_path / "missing"), str(tmp_path / "truth.json")]) == 2
+    bad = tmp_path / "truth.json"
+    bad.write_text('{"crystals": [{"x": 1}]}')
+    results = tmp_path / "results.json"
+    results.write_text('{"crystals": []}')
+    assert S.main([str(results), str(bad)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 3 and all(line.startswith(("population:", "score:")) for line in err)

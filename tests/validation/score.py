@@ -361,7 +361,11 @@ def main(argv=None) -> int:
     except (OSError, ValueError) as exc:
         print(f"score: {exc}", file=sys.stderr)
         return 2
-    s = score(results, truth)
+    try:
+        s = score(results, truth)
+    except (KeyError, TypeError, ValueError, ZeroDivisionError) as exc:
+        print(f"score: {args.results} or {args.truth} does not have the expected layout ({exc!r})", file=sys.stderr)
+        return 2
     print(format_report(s))
     if args.failures:
         print("\n".join(["boundaries not dated right:"] + ["  " + x for x in s["failures"]]))

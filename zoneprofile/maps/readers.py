@@ -114,7 +114,11 @@ def _check_shape(shape, dtype, path: Path) -> None:
 def _pick(names: list[str], channel, path: Path) -> int:
     """Index of ``channel`` among ``names`` (name, case-insensitive, or 1-based number)."""
     if channel is None:
-        return 0
+        if len(names) == 1:
+            return 0
+        # calibrating whichever channel happens to come first would be a silent guess
+        message = f"the file holds {len(names)} channels ({', '.join(names)}); choose one with --channel"
+        raise InputError(message, path=path)
     key = str(channel).strip()
     lowered = [n.lower() for n in names]
     if key.lower() in lowered:
@@ -241,10 +245,13 @@ def _read_tiff(path: Path, channel) -> MapImage:
                 raise InputError(message, path=path)
         pixel_um, source = _tiff_pixel_um(tif, page)
         data = None
-        if page.is_contiguous and page.compression == 1 and page.dtype.isnative:
+        if page.is_contiguous and page.compression == 1 and page.predictor in (1, None) and page.fillorder == 1:
+            # tifffile reports the pixel type in native order; the bytes on disk are in the
+            # file's order ('II' little-, 'MM' big-endian), so the memory map must say so
+            on_disk = page.dtype.newbyteorder(tif.byteorder)
             offset = page.dataoffsets[0]
             if offset % page.dtype.itemsize == 0:
-                data = np.memmap(path, dtype=page.dtype, mode="r", offset=offset, shape=page.shape, order="C")
+                data = np.memmap(path, dtype=on_disk, mode="r", offset=offset, shape=page.shape, order="C")
         if data is None:
             data = _tiff_asarray(page, path)
         return MapImage(data, name, names, path, pixel_um, source, data.dtype.kind in "ui")

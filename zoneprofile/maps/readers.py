@@ -293,8 +293,11 @@ def _read_png(path: Path, channel) -> MapImage:
                 img = opened.copy()
     except InputError:
         raise
-    except Image.DecompressionBombError:
-        message = f"image is larger than the {MAX_PIXELS:,} pixels accepted; refusing it as a decompression bomb"
+    except (Image.DecompressionBombError, Image.DecompressionBombWarning):
+        message = (
+            f"image is larger than the {MAX_PIXELS // 2:,} pixels accepted for PNG/JPEG (oversized, or a "
+            "decompression bomb); crop or bin it, or save it as TIFF"
+        )
         raise InputError(message, path=path) from None
     except Exception:
         message = "not a readable PNG/JPEG image (damaged, truncated or another format)"
@@ -360,6 +363,13 @@ def _read_npy(path: Path, channel) -> MapImage:
 _MAX_TEXT_BYTES = 2 << 30
 
 
+def _matrix_number(cell: str) -> float:
+    """``float`` without its underscores (``7_0`` is 70 to Python, a typo in a count matrix)."""
+    if "_" in cell:
+        raise ValueError(cell)
+    return float(cell)
+
+
 def _read_text(path: Path, channel) -> MapImage:
     """A count matrix as text: one image row per line, comma, tab, semicolon or spaces between values."""
     if path.stat().st_size > _MAX_TEXT_BYTES:
@@ -391,14 +401,14 @@ def _read_text(path: Path, channel) -> MapImage:
         if cells and cells[-1] == "":  # trailing delimiter
             cells = cells[:-1]
         try:
-            values = [float(c) for c in cells]
+            values = [_matrix_number(c) for c in cells]
         except ValueError:
             if not rows and not header_skipped:  # a header line of names
                 header_skipped = True
                 continue
             for j, c in enumerate(cells, start=1):
                 try:
-                    float(c)
+                    _matrix_number(c)
                 except ValueError:
                     raise InputError("not a number", path=path, row=i, column=str(j), text=c) from None
         if rows and len(values) != len(rows[0]):

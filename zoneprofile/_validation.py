@@ -92,9 +92,12 @@ def require_file(path, *, what="input file") -> Path:
 
 def require_finite(value, name: str) -> float:
     """Return ``value`` as a float, refusing NaN, inf and non-numbers."""
+    if isinstance(value, str) and "_" in value:  # float('1_0') is 10: a typo, not a number
+        message = f"{name} must be a number"
+        raise InputError(message, text=value)
     try:
         x = float(value)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         message = f"{name} must be a number"
         raise InputError(message, text=value) from None
     if not math.isfinite(x):

@@ -106,6 +106,74 @@ def project_on_line(x, y) -> tuple[np.ndarray, np.ndarray]:
     return (pts - centre) @ u, (pts - centre) @ v
 
 
+#: A distance column above this at the rim point is kept but noted (a first
+#: spot sits a beam radius or a few µm inside the edge, common practice).
+RIM_OFFSET_NOTE_UM = 20.0
+#: A point is off the traverse line when its offset exceeds both this many robust
+#: standard deviations of the offsets and :data:`OFF_LINE_MIN_UM` (common practice:
+#: stage repeatability is about 1 µm; a mistyped digit moves a point by tens to
+#: thousands of µm).
+OFF_LINE_SIGMAS = 8.0
+OFF_LINE_MIN_UM = 5.0
+
+
+def _robust_projection(x_um, y_um) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Projection on the line through the points, fitted without the points far off it.
+
+    A least-median start (the line through two points, of up to 200 spread-out
+    pairs, with the smallest median offset: least median of squares,
+    Rousseeuw 1984, J. Am. Stat. Assoc. 79, 871-880) marks points whose offset exceeds
+    ``max(OFF_LINE_SIGMAS x 1.4826 MAD, OFF_LINE_MIN_UM)``; the
+    total-least-squares line through the others is then refitted until the
+    set is stable. A point with a mistyped coordinate would otherwise tilt the
+    line and shift every distance. Returns (along, across, off_line) for all
+    points on the line fitted to the others.
+    """
+    x_um, y_um = np.asarray(x_um, float), np.asarray(y_um, float)
+    n = x_um.size
+    pts_all = np.column_stack([x_um, y_um])
+    off = np.zeros(n, dtype=bool)
+
+    def threshold(res):
+        mad = 1.4826 * float(np.median(np.abs(res - np.median(res))))
+        return max(OFF_LINE_SIGMAS * mad, OFF_LINE_MIN_UM)
+
+    if n >= 4:
+        best, best_med = None, np.inf
+        m = min(n, 200)
+        for k in range(m):
+            i = k * n // m
+            j = (i + n // 2) % n
+            d = pts_all[j] - pts_all[i]
+            length = float(np.hypot(*d))
+            if length == 0:
+                continue
+            v = np.array([-d[1], d[0]]) / length
+            med = float(np.median(np.abs((pts_all - pts_all[i]) @ v)))
+            if med < best_med:
+                best, best_med = (pts_all[i], v), med
+        if best is not None:
+            res = (pts_all - best[0]) @ best[1]
+            off = np.abs(res - np.median(res)) > threshold(res)
+            if off.sum() > n // 4:
+                off[:] = False
+    for _ in range(5):
+        use = ~off
+        centre = pts_all[use].mean(axis=0)
+        pts = pts_all - centre
+        _, _, vt = np.linalg.svd(pts[use], full_matrices=False)
+        u = vt[0]
+        v = np.array([-u[1], u[0]])
+        along, across = pts @ u, pts @ v
+        if n < 4:  # too few points to call one an outlier
+            break
+        new_off = np.abs(across - np.median(across[use])) > threshold(across[use])
+        if np.array_equal(new_off, off) or new_off.sum() > n // 4:
+            break
+        off = new_off
+    return along, across, off
+
+
 def _sha256(path: Path) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:
@@ -114,7 +182,7 @@ def _sha256(path: Path) -> str:
     return h.hexdigest()
 
 
-def _distances(a: Analyses, rim: str, stage_units, step_um, notes) -> tuple[np.ndarray, np.ndarray, float, str]:
+def _distances(a: Analyses, rim: str, stage_units, step_um, notes, off_line=None) -> tuple[np.ndarray, np.ndarray, float, str]:
     d = a.data
     n = len(d)
     rim_index = 0 if rim == "start" else n - 1
@@ -132,7 +200,21 @@ def _distances(a: Analyses, rim: str, stage_units, step_um, notes) -> tuple[np.n
             raise InputError(message, path=a.path, row=first_row, column=col)
         others = np.delete(dist, rim_index)
         if np.median(others) >= dist[rim_index]:
-            out = dist  # measured away from the rim already: honoured as written
+            # measured away from the rim already. A small positive value at the rim
+            # point is the spot's distance from the crystal edge and is kept; a
+            # negative one means another zero (stage origin, a boundary): re-zeroed.
+            rim_row = int(d["_row"].iloc[rim_index])
+            if dist[rim_index] < 0:
+                out = dist - dist[rim_index]
+                notes.append(
+                    f"distance column '{col}' is {dist[rim_index]:g} µm at the rim point (row {rim_row}): "
+                    "re-zeroed so the rim point is at 0 µm")
+            else:
+                out = dist
+                if dist[rim_index] > RIM_OFFSET_NOTE_UM:
+                    notes.append(
+                        f"distance column '{col}' is {dist[rim_index]:g} µm at the rim point (row {rim_row}); kept "
+                        "as the spot's distance from the crystal edge: if the column counts from elsewhere, re-zero it")
         else:
             out = dist[rim_index] - dist
             notes.append(f"distance column '{col}' decreases away from the rim: flipped so the rim point is at 0 µm")
@@ -149,10 +231,23 @@ def _distances(a: Analyses, rim: str, stage_units, step_um, notes) -> tuple[np.n
         if np.ptp(x_um) == 0 and np.ptp(y_um) == 0:
             message = "all points sit at the same stage position; cannot place them along a traverse"
             raise InputError(message, path=a.path, row=first_row, column=a.columns["x"])
-        along, across = project_on_line(x_um, y_um)
+        along, across, off = _robust_projection(x_um, y_um)
+        if off[rim_index]:
+            message = (
+                f"the rim point lies {abs(across[rim_index]):.1f} µm off the line through the other points; "
+                "check its stage coordinates (a mistyped digit?)"
+            )
+            raise InputError(message, path=a.path, row=int(d["_row"].iloc[rim_index]), column=a.columns["x"])
         rel = along - along[rim_index]
-        sign = 1.0 if np.sum(rel) >= 0 else -1.0
-        return sign * rel, across, float(np.max(np.abs(across))), "stage X/Y"
+        sign = 1.0 if np.sum(rel[~off]) >= 0 else -1.0
+        for k in np.flatnonzero(off):
+            notes.append(
+                f"row {int(d['_row'].iloc[k])} lies {abs(across[k]):.1f} µm off the traverse line: flagged in qc "
+                "and left out of the line fit (check its stage coordinates)")
+        max_offset = float(np.max(np.abs(across[~off])))
+        if off_line is not None:
+            off_line[:] = off
+        return sign * rel, across, max_offset, "stage X/Y"
     if "x" in d or "y" in d:
         which = "x" if "x" in d else "y"
         message = "only one stage coordinate column found; give both X and Y, or a distance column"
@@ -279,7 +374,12 @@ def traverse_from_analyses(
         if extra_flags[k]:
             qc_text[k] = "; ".join(([] if qc_text[k] == "ok" else [qc_text[k]]) + extra_flags[k])
 
-    distance, across, max_offset, source = _distances(a, rim, stage_units, step_um, notes)
+    off_line = np.zeros(n, dtype=bool)
+    distance, across, max_offset, source = _distances(a, rim, stage_units, step_um, notes, off_line)
+    if source == "stage X/Y":
+        for k in np.flatnonzero(off_line):  # the points left out of the line fit
+            flag = f"off the traverse line by {abs(across[k]):.1f} µm"
+            qc_text[k] = flag if qc_text[k] == "ok" else f"{qc_text[k]}; {flag}"
     table = pd.DataFrame({"point": d["point"].to_numpy(), "distance_um": distance + 0.0})
     for c in ("sample", "crystal", "comment"):
         if c in d:

@@ -12,7 +12,7 @@ import math
 import re
 from dataclasses import dataclass
 
-__all__ = ["Cell", "parse_cell"]
+__all__ = ["Cell", "parse_cell", "parse_number"]
 
 _CENSORED_WORDS = {
     "bdl", "b.d.l.", "b.d.l", "bd", "b.d.", "bld", "lod", "<lod", "dl", "<dl", "<d.l.", "<bdl", "nd", "n.d.",
@@ -63,3 +63,16 @@ def parse_cell(text) -> Cell:
     if x < 0:
         return Cell("censored", value=x, text=s)
     return Cell("number", value=x, text=s)
+
+
+def parse_number(text) -> float | None:
+    """A plain decimal number as written in a table or on the command line, else None.
+
+    Stricter than ``float``: underscores (``7_0.5`` is 70.5 to Python, a typo
+    to a petrologist), ``nan``/``inf`` words and hexadecimal are not numbers.
+    A Unicode minus is accepted.
+    """
+    s = "" if text is None else str(text).strip()
+    if not s:
+        return None
+    return _number(s) if "_" not in s else None

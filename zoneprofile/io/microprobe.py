@@ -192,36 +192,21 @@ def read_analyses(path, *, sheet=None) -> Analyses:
             notes.append(f"row {int(frame['_row'].iloc[0])} read as a unit row")
             frame = frame.iloc[1:].reset_index(drop=True)
 
-    # summary rows (Average, StDev, ...) and comment lines are not analyses
-    label_cols = [header[j] for j, n in names.items() if n in ("point", "comment")]
-    keep = np.ones(len(frame), dtype=bool)
-    cells_by_row = frame[header].astype(object).to_numpy() if header else np.empty((len(frame), 0), dtype=object)
-    label_idx = [header.index(c) for c in label_cols]
-    oxide_idx = [j for j, n in names.items() if n in OXIDES]
-    line_no = frame["_row"].to_numpy()
-    for k in range(len(frame)):
-        row = cells_by_row[k]
-        first_cell = str(row[0]).strip() if len(row) else ""
-        if first_cell.startswith("#") and all(not str(c).strip() for c in row[1:]):
-            keep[k] = False
-            continue
-        if oxide_idx and all(not str(row[j]).strip() for j in oxide_idx):
-            keep[k] = False  # a footer or note line: no oxide cell at all
-            notes.append(f"row {int(line_no[k])} skipped: no oxide values")
-            continue
-        if header_score(row) >= 2:
-            keep[k] = False  # the header repeated (page break in an export)
-            notes.append(f"row {int(line_no[k])} skipped: the header repeated")
-            continue
-        for j in label_idx:
-            if str(row[j]).strip().lower().rstrip(":") in _SUMMARY_LABELS:
-                keep[k] = False
-                notes.append(f"row {int(line_no[k])} ('{row[j]}') skipped as a summary row")
-                break
+    # summary rows (Average, StDev, ...), comment lines, footers and repeated
+    # headers are not analyses: skipped, and every skipped row is counted
+    keep, reasons = _skip_non_analyses(frame, header, names, notes)
+    n_below = len(frame)
     frame = frame[keep].reset_index(drop=True)
     if len(frame) == 0:
         message = "the header has no data rows below it"
         raise InputError(message, path=p, row=header_row)
+    if reasons:
+        counts: dict[str, int] = {}
+        for why in reasons.values():
+            counts[why] = counts.get(why, 0) + 1
+        detail = ", ".join(f"{v} {k}" for k, v in counts.items())
+        notes.append(f"skipped {len(reasons)} of {n_below} rows below the header ({detail})")
+        _refuse_lost_rows(reasons, frame["_row"].to_numpy(dtype=int), p)
 
     rows = frame["_row"].to_numpy(dtype=int)
     data = pd.DataFrame({"_row": rows})
@@ -302,6 +287,83 @@ def read_analyses(path, *, sheet=None) -> Analyses:
         notes=notes,
         detection_limit=detection_limit,
     )
+
+
+#: Summary words that are also plausible point labels or comments ("N" for a
+#: north traverse, "max" for the highest-An point): they mark a summary row only
+#: in the block of rows after the last analysis, or where the row has no position.
+_AMBIGUOUS_SUMMARY = {"n", "sd", "s.d.", "min", "max", "sum", "total", "count", "std", "avg", "avg."}
+#: Rows between analyses that hold no oxide value (an analysis that lost its
+#: numbers?) are refused above this share of the analyses kept (common practice:
+#: a probe export has none; one in twenty is already a damaged table).
+MAX_LOST_ROW_SHARE = 0.05
+
+
+def _skip_non_analyses(frame, header, names, notes) -> tuple[np.ndarray, dict[int, str]]:
+    """Which rows below the header are analyses; the reason each other row was skipped (by line)."""
+    keep = np.ones(len(frame), dtype=bool)
+    reasons: dict[int, str] = {}
+    cells_by_row = frame[header].astype(object).to_numpy() if header else np.empty((len(frame), 0), dtype=object)
+    by_name = {n: j for j, n in names.items()}
+    # the label of a row is its point label, else its first cell; a comment never makes a summary row
+    label_j = by_name.get("point", 0)
+    position_idx = [by_name[n] for n in ("x", "y", "distance") if n in by_name]
+    oxide_idx = [j for j, n in names.items() if n in OXIDES]
+    line_no = frame["_row"].to_numpy()
+    summary = np.zeros(len(frame), dtype=bool)
+    word = np.zeros(len(frame), dtype=object)
+    for k in range(len(frame)):
+        row = cells_by_row[k]
+        first_cell = str(row[0]).strip() if len(row) else ""
+        if first_cell.startswith("#") and all(not str(c).strip() for c in row[1:]):
+            keep[k] = False
+            reasons[int(line_no[k])] = "comment line"
+            continue
+        if oxide_idx and all(not str(row[j]).strip() for j in oxide_idx):
+            keep[k] = False  # a footer or note line: no oxide cell at all
+            reasons[int(line_no[k])] = "without oxide values"
+            notes.append(f"row {int(line_no[k])} skipped: no oxide values")
+            continue
+        if header_score(row) >= 2:
+            keep[k] = False  # the header repeated (page break in an export)
+            reasons[int(line_no[k])] = "repeated header"
+            notes.append(f"row {int(line_no[k])} skipped: the header repeated")
+            continue
+        label = str(row[label_j]).strip().lower().rstrip(":") if len(row) > label_j else ""
+        if label in _SUMMARY_LABELS:
+            summary[k], word[k] = True, row[label_j]
+    # a summary row has no stage position of its own, and an ambiguous word
+    # ('N', 'max') counts only in the trailing block of summary rows
+    trailing = np.zeros(len(frame), dtype=bool)
+    for k in range(len(frame) - 1, -1, -1):
+        if keep[k] and not summary[k]:
+            break
+        trailing[k] = True
+    for k in np.flatnonzero(summary & keep):
+        row = cells_by_row[k]
+        no_position = not position_idx or all(not str(row[j]).strip() for j in position_idx)
+        unambiguous = str(word[k]).strip().lower().rstrip(":") not in _AMBIGUOUS_SUMMARY
+        if no_position and (unambiguous or trailing[k]):
+            keep[k] = False
+            reasons[int(line_no[k])] = "summary"
+            notes.append(f"row {int(line_no[k])} ('{word[k]}') skipped as a summary row")
+    return keep, reasons
+
+
+def _refuse_lost_rows(reasons: dict[int, str], kept_rows: np.ndarray, path) -> None:
+    """Refuse a table where too many rows between analyses hold no oxide value."""
+    if kept_rows.size == 0:
+        return
+    inside = sorted(r for r, why in reasons.items()
+                    if why == "without oxide values" and kept_rows.min() < r < kept_rows.max())
+    if len(inside) > MAX_LOST_ROW_SHARE * kept_rows.size:
+        shown = ", ".join(map(str, inside[:6])) + (", ..." if len(inside) > 6 else "")
+        message = (
+            f"{len(inside)} rows between the analyses hold no oxide value (rows {shown}), more than "
+            f"{MAX_LOST_ROW_SHARE:.0%} of the {kept_rows.size} analyses: the table looks damaged; "
+            "fill or delete those rows"
+        )
+        raise InputError(message, path=path, row=inside[0])
 
 
 def _check_magnitudes(out, values, rows, path, src, cells):

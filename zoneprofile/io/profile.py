@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from zoneprofile._validation import InputError, require_file
+from zoneprofile.io.cells import parse_number
 
 __all__ = ["read_profile", "read_text_table"]
 
@@ -52,12 +53,13 @@ def _sniff_delimiter(lines: list[str]) -> str:
 
 
 def read_text_table(path, *, header_contains=None) -> tuple[pd.DataFrame, int]:
-    """Read a delimited text table as strings.
+    """Read a delimited text table (or an .xlsx sheet) as strings.
 
     Parameters
     ----------
     path : path-like
-        CSV, TSV or semicolon-separated file (decimal commas allowed with ``;``).
+        CSV, TSV, semicolon-separated (decimal commas allowed with ``;`` or
+        tabs), whitespace-aligned text, UTF-8 or UTF-16, or .xlsx.
     header_contains : iterable of str, optional
         Lower-case names, one of which must appear in the header row; lines above
         it (titles) are skipped. Default: the first non-empty line is the header.
@@ -69,56 +71,31 @@ def read_text_table(path, *, header_contains=None) -> tuple[pd.DataFrame, int]:
         row's 1-based line number in the file.
     header_line : int
         1-based line number of the header.
+
+    Raises
+    ------
+    InputError
+        As :func:`zoneprofile.io.tables.read_raw_table`; also a data row with
+        more cells than the header and an unclosed quote, naming the row.
     """
+    from zoneprofile.io import tables
+
     p = require_file(path)
-    text = _decode(p)
-    lines = text.splitlines()
-    if not any(ln.strip() for ln in lines):
-        raise InputError("file holds no text", path=p)
-    delim = _sniff_delimiter(lines)
-    rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delim))
-    header_idx = None
-    wanted = None if header_contains is None else {w.lower() for w in header_contains}
-    for i, row in enumerate(rows):
-        cells = [c.strip().lower() for c in row]
-        if not any(cells):
-            continue
-        if wanted is None or wanted.intersection(cells):
-            header_idx = i
-            break
-    if header_idx is None:
-        need = ", ".join(sorted(wanted)) if wanted else "a header"
-        message = f"no header row found; expected a row naming {need}"
-        raise InputError(message, path=p)
-    header = [c.strip() for c in rows[header_idx]]
-    seen = {}
-    for j, name in enumerate(header):
-        if name and name in seen:
-            message = f"duplicate column '{name}' (columns {seen[name] + 1} and {j + 1}); rename or remove one"
-            raise InputError(message, path=p, row=header_idx + 1)
-        seen[name] = j
-    records, line_numbers = [], []
-    for i in range(header_idx + 1, len(rows)):
-        row = rows[i]
-        if not any(c.strip() for c in row):
-            continue
-        cells = [c.strip() for c in row] + [""] * max(0, len(header) - len(row))
-        records.append(cells[: len(header)])
-        line_numbers.append(i + 1)
-    frame = pd.DataFrame(records, columns=header, dtype=object)
-    if delim == ";":
-        frame = frame.map(lambda s: s.replace(",", ".") if isinstance(s, str) else s)
-    frame["_row"] = line_numbers
-    return frame, header_idx + 1
+    wanted = None if header_contains is None else {str(w).strip().lower() for w in header_contains}
+
+    def is_header(row):
+        cells = {c.strip().lower() for c in row if c.strip()}
+        if not cells:
+            return 0
+        return 1 if wanted is None else len(wanted & cells)
+
+    return tables._sheet_frame(p, None, is_header, wanted)
 
 
 def _read_any(path: Path, sheet, header_contains) -> pd.DataFrame:
-    if path.suffix.lower() in (".xlsx", ".xlsm"):
-        from zoneprofile.io import tables
+    from zoneprofile.io import tables
 
-        return tables.read_sheet_as_text(path, sheet=sheet, header_contains=header_contains)
-    frame, _ = read_text_table(path, header_contains=header_contains)
-    return frame
+    return tables.read_sheet_as_text(path, sheet=sheet, header_contains=header_contains)
 
 
 def _to_float(frame: pd.DataFrame, column: str, path: Path, *, allow_blank: bool) -> np.ndarray:
@@ -130,10 +107,9 @@ def _to_float(frame: pd.DataFrame, column: str, path: Path, *, allow_blank: bool
                 out[k] = np.nan
                 continue
             raise InputError("empty cell where a number is needed", path=path, row=int(row), column=column)
-        try:
-            x = float(s)
-        except ValueError:
-            raise InputError("not a number", path=path, row=int(row), column=column, text=s) from None
+        x = parse_number(s)
+        if x is None:
+            raise InputError("not a number", path=path, row=int(row), column=column, text=s)
         if not np.isfinite(x) or abs(x) > 1e12:
             raise InputError("not a finite, plausible number", path=path, row=int(row), column=column, text=s)
         out[k] = x
@@ -205,6 +181,12 @@ def read_profile(
     ]
     out["qc"] = frame[names["qc"]].astype(str).to_numpy() if "qc" in names else "ok"
     d = out["distance_um"].to_numpy()
+    if len(d) and d[0] < 0:
+        message = (
+            f"distance_um is measured from the rim (0) toward the core, but the first point is at {d[0]:g} µm; "
+            f"re-zero the column (subtract {d[0]:g}) or give the recalc output"
+        )
+        raise InputError(message, path=p, row=int(out["_row"][0]), column="distance_um")
     if len(d) >= 2:
         diffs = np.diff(d)
         if np.any(diffs == 0):

@@ -67,10 +67,70 @@ def _decode(path: Path) -> str:
     raise InputError(message, path=path)
 
 
+#: Longest cell read (characters): Python's csv limit; no analysis, label or
+#: comment comes near it (a spreadsheet cell holds at most 32,767).
+MAX_CELL_CHARS = 131_072
+
+
 def _split(lines: list[str], delimiter: str | None) -> list[list[str]]:
+    """Quick split for choosing the delimiter (quotes honoured, never raises)."""
     if delimiter is None:  # whitespace-aligned columns
         return [ln.split() for ln in lines]
-    return [[c.strip() for c in row] for row in csv.reader(lines, delimiter=delimiter)]
+    try:
+        return [[c.strip() for c in row] for row in csv.reader(lines, delimiter=delimiter)]
+    except csv.Error:  # an over-long cell: the full read names the row
+        return [[c.strip() for c in ln.split(delimiter)] for ln in lines]
+
+
+def _refuse_long_cell(path: Path, row: int, length: int | None = None) -> None:
+    size = f"of {length:,} characters" if length else "longer than the limit"
+    message = (
+        f"a cell {size} (more than {MAX_CELL_CHARS:,}): not a value, label or comment of a table "
+        "(a damaged file, or a stray quote?)"
+    )
+    raise InputError(message, path=path, row=row)
+
+
+def _split_records(lines: list[str], delimiter: str | None, path: Path) -> tuple[list[list[str]], list[int]]:
+    """Split every line into cells, keeping the line number where each record starts.
+
+    A quoted cell may hold a line break (a multi-line comment). A quote that is
+    never closed, or one that swallows whole lines of cells (a stray ``"``),
+    would silently merge the rest of the table into one cell: refused, naming
+    the row where the quote opens.
+    """
+    if delimiter is None:
+        return [ln.split() for ln in lines], list(range(1, len(lines) + 1))
+    reader = csv.reader((ln + "\n" for ln in lines), delimiter=delimiter, strict=True)
+    rows, starts = [], []
+    previous = 0
+    while True:
+        start = previous + 1
+        try:
+            row = next(reader)
+        except StopIteration:
+            break
+        except csv.Error as exc:
+            if "field larger" in str(exc):
+                _refuse_long_cell(path, start)
+            message = (
+                'a quote (") opened in this row is never closed, so the rest of the file would be read as '
+                "one cell; remove the stray quote or close it"
+            )
+            if reader.line_num <= start:  # a quote followed by text, e.g. '"5.2"x'
+                message = 'a quoted cell is followed by more text before the next separator; remove the stray quote (")'
+            raise InputError(message, path=path, row=start) from None
+        end = reader.line_num
+        previous = end
+        if end > start and any(delimiter in ln for ln in lines[start:end]):
+            message = (
+                f'a quote (") opened in this row runs to row {end} and swallows {end - start} line(s) of cells; '
+                "remove the stray quote or close it"
+            )
+            raise InputError(message, path=path, row=start)
+        rows.append([c.strip() for c in row])
+        starts.append(start)
+    return rows, starts
 
 
 def _text_rows(path: Path, is_header: Callable[[list[str]], int] | None) -> RawTable:
@@ -95,9 +155,10 @@ def _text_rows(path: Path, is_header: Callable[[list[str]], int] | None) -> RawT
             best, best_score = delim, key
     if best is None and best_score[0] <= 0:
         best = ","
-    rows, decimal_comma = _decimal_points(_split(lines, best))
+    rows, starts = _split_records(lines, best, path)
+    rows, decimal_comma = _decimal_points(rows)
     return RawTable(
-        rows, list(range(1, len(rows) + 1)), path, delimiter=best, decimal_comma=decimal_comma,
+        rows, starts, path, delimiter=best, decimal_comma=decimal_comma,
         ends_cleanly=text.endswith(("\n", "\r")),
     )
 
@@ -123,17 +184,77 @@ def _cell_text(value) -> str:
     return str(value).strip()
 
 
-def _xlsx_rows(path: Path, sheet, is_header) -> RawTable:
+#: Bounds on the parts of a workbook, checked before anything is inflated: a
+#: part's declared size and its inflation ratio (a real sheet compresses 5-30
+#: fold; a part of empty rows made to fill memory compresses a thousand fold).
+MAX_XLSX_PART_BYTES = 256 << 20
+MAX_XLSX_TOTAL_BYTES = 1 << 30
+MAX_XLSX_RATIO = 200
+#: A formula with no saved value ends right after its formula element.
+_UNCACHED_FORMULA = re.compile(rb"(</f>|<f\b[^>]*/>)\s*</c>")
+
+
+def _exc_name(exc: BaseException) -> str:
+    name = type(exc).__name__
+    return f"{type(exc).__module__} {name}" if name == "error" else name  # zlib.error -> 'zlib error'
+
+
+def check_xlsx_parts(path: Path) -> None:
+    """Refuse a workbook whose parts would inflate beyond the bounds, or whose
+    formula cells have no saved value (they would read as blank cells)."""
     import zipfile
 
+    try:
+        with zipfile.ZipFile(path) as z:
+            infos = z.infolist()
+            total = sum(i.file_size for i in infos)
+            for info in infos:
+                ratio = info.file_size / max(info.compress_size, 1)
+                if info.file_size > MAX_XLSX_PART_BYTES or (info.file_size > (1 << 20) and ratio > MAX_XLSX_RATIO):
+                    message = (
+                        f"workbook part '{info.filename}' would inflate to {info.file_size / 2**20:.0f} MiB "
+                        f"({ratio:.0f} times its stored size; limits {MAX_XLSX_PART_BYTES >> 20} MiB and "
+                        f"{MAX_XLSX_RATIO} times): refusing it as damaged or hostile; save the sheet as CSV"
+                    )
+                    raise InputError(message, path=path)
+            if total > MAX_XLSX_TOTAL_BYTES:
+                message = (f"workbook would inflate to {total / 2**30:.1f} GiB (limit {MAX_XLSX_TOTAL_BYTES >> 30} GiB); "
+                           "save the sheet as CSV")
+                raise InputError(message, path=path)
+            for info in infos:
+                if not (info.filename.startswith("xl/worksheets/") and info.filename.endswith(".xml")):
+                    continue
+                found, tail = 0, b""
+                with z.open(info) as fh:
+                    for block in iter(lambda: fh.read(1 << 20), b""):
+                        chunk = tail + block  # a match may straddle two blocks; count it once
+                        found += sum(1 for m in _UNCACHED_FORMULA.finditer(chunk) if m.end() > len(tail))
+                        tail = chunk[-64:]
+                if found:
+                    message = (
+                        f"the workbook holds {found} formula cell(s) without a saved value in "
+                        f"'{info.filename.rsplit('/', 1)[-1]}' (written by a program that does not compute "
+                        "formulas); they would read as blank: open and save it in a spreadsheet program, "
+                        "or paste values"
+                    )
+                    raise InputError(message, path=path)
+    except InputError:
+        raise
+    except Exception as exc:
+        message = f"cannot read this .xlsx (damaged, truncated or not an Excel workbook: {_exc_name(exc)})"
+        raise InputError(message, path=path) from None
+
+
+def _xlsx_rows(path: Path, sheet, is_header) -> RawTable:
     try:
         import openpyxl
     except ImportError:  # pragma: no cover - a declared dependency
         raise InputError("reading .xlsx needs the 'openpyxl' package", path=path) from None
+    check_xlsx_parts(path)
     try:
         wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
-    except (zipfile.BadZipFile, KeyError, OSError, ValueError, TypeError, EOFError) as exc:
-        message = f"cannot read this .xlsx (damaged, truncated or not an Excel workbook: {type(exc).__name__})"
+    except Exception as exc:  # any failure to parse a workbook is a damaged input
+        message = f"cannot read this .xlsx (damaged, truncated or not an Excel workbook: {_exc_name(exc)})"
         raise InputError(message, path=path) from None
     try:
         names = list(wb.sheetnames)
@@ -154,8 +275,8 @@ def _xlsx_rows(path: Path, sheet, is_header) -> RawTable:
             try:
                 rows = [[_cell_text(v) for v in row] for row in wb[name].iter_rows(values_only=True)]
                 rows, _ = _decimal_points(rows)
-            except (zipfile.BadZipFile, KeyError, OSError, ValueError, TypeError, EOFError) as exc:
-                message = f"cannot read sheet '{name}' (damaged workbook: {type(exc).__name__})"
+            except Exception as exc:  # XML, zlib or zip errors of a damaged part
+                message = f"cannot read sheet '{name}' (damaged workbook: {_exc_name(exc)})"
                 raise InputError(message, path=path) from None
             table = RawTable(rows, list(range(1, len(rows) + 1)), path, sheet=name, sheets=names)
             if sheet is not None or is_header is None:
@@ -235,12 +356,36 @@ def frame_below_header(table: RawTable, header_index: int, *, dedupe: bool = Fal
         row = table.rows[i]
         if not any(c.strip() for c in row):
             continue
+        if len(row) > len(header) and any(c.strip() for c in row[len(header):]):
+            _refuse_extra_cells(table, i, row, len(header))
+        longest = max(map(len, row))
+        if longest > MAX_CELL_CHARS:
+            _refuse_long_cell(table.path, table.lines[i], longest)
         cells = [c.strip() for c in row] + [""] * max(0, len(header) - len(row))
         records.append(cells[: len(header)])
         rows.append(table.lines[i])
     frame = pd.DataFrame(records, columns=header, dtype=object) if records else pd.DataFrame(columns=header, dtype=object)
     frame["_row"] = rows
     return frame
+
+
+def _refuse_extra_cells(table: RawTable, i: int, row: list[str], width: int) -> None:
+    """A data row wider than the header: its last cells would be dropped and the
+    others may have shifted (a decimal comma in a comma-separated file turns
+    '52,2' into two cells). Never guessed: the row is named."""
+    filled = len(row)
+    while filled > width and not row[filled - 1].strip():
+        filled -= 1
+    message = f"row has {filled} cells but the header has {width}; cells beyond the header would be lost"
+    if table.delimiter == ",":
+        message += (
+            " (likely cause: decimal commas in a comma-separated file, '52,2' read as two cells; "
+            "save it with ';' as separator or with decimal points)"
+        )
+    else:
+        message += " (a column without a name in the header?)"
+    extra = next(c for c in row[width:] if c.strip())
+    raise InputError(message, path=table.path, row=table.lines[i], text=extra)
 
 
 def read_sheet_as_text(path, *, sheet=None, header_contains=None) -> pd.DataFrame:
@@ -270,10 +415,14 @@ def read_sheet_as_text(path, *, sheet=None, header_contains=None) -> pd.DataFram
             return 0
         return 1 if wanted is None else len(wanted & cells)
 
+    return _sheet_frame(path, sheet, is_header, wanted)[0]
+
+
+def _sheet_frame(path, sheet, is_header, wanted) -> tuple[pd.DataFrame, int]:
     table = read_raw_table(path, sheet=sheet, is_header=is_header)
     for i, row in enumerate(table.rows):
         if is_header(row) > 0:
-            return frame_below_header(table, i)
+            return frame_below_header(table, i), table.lines[i]
     need = ", ".join(sorted(wanted)) if wanted else "a header"
     where = f" in sheet '{table.sheet}'" if table.sheet else ""
     message = f"no header row found{where}; expected a row naming {need}"

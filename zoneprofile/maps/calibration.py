@@ -196,10 +196,11 @@ def read_spots(path, *, column="An", pixel_um, shape, spot_um=None):
         s = "" if cell is None else str(cell).strip()
         if s == "":
             raise InputError("empty cell where a number is needed", path=path, row=row, column=str(col))
-        try:
-            v = float(s)
-        except ValueError:
-            raise InputError("not a number", path=path, row=row, column=str(col), text=s) from None
+        from zoneprofile.io.cells import parse_number
+
+        v = parse_number(s)
+        if v is None:
+            raise InputError("not a number", path=path, row=row, column=str(col), text=s)
         if not np.isfinite(v) or (positive and v <= 0):
             need = "a positive number" if positive else "a finite number"
             raise InputError(f"expected {need}", path=path, row=row, column=str(col), text=s)

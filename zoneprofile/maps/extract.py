@@ -42,6 +42,59 @@ def _ratio_signal(image, other, path):
     return ratio, total
 
 
+#: Largest pixel magnitude read as a signal: counts, counts per second, grey levels
+#: and ratios stay far below it; beyond it the map is mis-scaled or damaged.
+MAX_PIXEL_VALUE = 1.0e12
+
+
+def _mask_nonfinite(data, path, notes):
+    """Masked pixels (NaN, ±inf) of a floating-point map: counted, replaced for the
+    thresholding only, and returned as a float map (1 = masked) so that spots and
+    profile samples touching them are left out or flagged, never averaged in.
+
+    Refuses a map with no finite pixel, and one whose finite pixels exceed
+    :data:`MAX_PIXEL_VALUE` (mis-scaled: squares of such values overflow).
+    """
+    if np.asarray(data[:1, :1]).dtype.kind != "f":
+        return data, None
+    bad = np.zeros(data.shape, dtype=bool)
+    peak = 0.0
+    for r0 in range(0, data.shape[0], 512):
+        strip = np.asarray(data[r0:r0 + 512])
+        finite = np.isfinite(strip)
+        bad[r0:r0 + 512] = ~finite
+        if finite.any():
+            peak = max(peak, float(np.max(np.abs(strip[finite]))))
+    n_bad = int(np.count_nonzero(bad))
+    if n_bad == bad.size:
+        raise InputError("every pixel of the map is NaN or infinite; nothing to calibrate", path=path)
+    if peak > MAX_PIXEL_VALUE:
+        message = (f"pixel values reach {peak:.3g}; element-map counts, count rates and grey levels stay below "
+                   f"{MAX_PIXEL_VALUE:.0e}: the map is mis-scaled or damaged (rescale it)")
+        raise InputError(message, path=path)
+    if n_bad == 0:
+        return data, None
+    filled = np.array(data, dtype=np.float32)
+    filled[bad] = np.float32(np.median(filled[~bad]))
+    notes.append(f"{n_bad} of {bad.size} pixels are NaN or infinite: masked (spots and profile samples touching "
+                 "them are left out or flagged)")
+    return filled, bad.astype(np.float32)
+
+
+def _flag_masked_samples(frame, bad_pixels, line, width_px, pixel_um):
+    """Flag profile samples whose footprint across the line touches a masked pixel."""
+    from zoneprofile.maps.profiles import sample_line
+
+    dist_px, touched = sample_line(bad_pixels, line, width_px=width_px)
+    hit = np.interp(frame["distance_um"].to_numpy() / pixel_um, dist_px, touched) > 0
+    if hit.any():
+        frame = frame.copy()
+        q = frame["qc"].to_numpy(dtype=object)
+        flag = "masked (NaN/inf) pixels"
+        frame["qc"] = [(flag if qq == "ok" else f"{qq}; {flag}") if h else qq for qq, h in zip(q, hit)]
+    return frame
+
+
 def _user_steps(frame, column, positions, pixel_um):
     out = []
     d = frame["distance_um"].to_numpy()
@@ -164,6 +217,7 @@ def extract_profile(
     if ratio_with is not None:
         other = read_map(image_path, channel=ratio_with)
         data, total = _ratio_signal(image, other, image_path)
+    data, bad_pixels = _mask_nonfinite(data, image_path, warnings_out)
     shape = data.shape
     if line is not None:
         line = check_line(line, shape)
@@ -178,6 +232,18 @@ def extract_profile(
         raise InputError(message, path=spots_path)
     sizes = spots["spot_um"].to_numpy(float) if spot_um is None else np.full(len(spots), spot_um)
     sizes = np.where(np.isfinite(sizes), sizes, pixel_um)
+    if bad_pixels is not None:
+        touched = spot_signals(bad_pixels, spots["x_px"], spots["y_px"], sizes / 2 / pixel_um)[0] > 0
+        if touched.any():
+            warnings_out.append(
+                f"{int(touched.sum())} spot(s) left out of the calibration: their footprint holds masked "
+                f"(NaN/inf) pixels (rows {', '.join(str(r) for r in spots['row'][touched])})")
+            spots = spots[~touched].reset_index(drop=True)
+            sizes = sizes[~touched]
+            if len(spots) < 3:
+                message = (f"calibration needs at least 3 spot analyses on finite pixels of the map, "
+                           f"found {len(spots)}")
+                raise InputError(message, path=spots_path)
     raw_signal, _, _ = spot_signals(data, spots["x_px"], spots["y_px"], sizes / 2 / pixel_um)
     phases = sorted({p for p in spots["phase"] if p})
     mask = crystal_mask(data, line=line, seed_xy=seed_xy,
@@ -230,7 +296,15 @@ def extract_profile(
                              mask=mask, column=column)
         if not mask.found:
             warnings_out.append("profile not trimmed to the crystal (no crystal found under the line)")
+        if bad_pixels is not None:
+            frame = _flag_masked_samples(frame, bad_pixels, line, width_px, pixel_um)
     else:
+        if bad_pixels is not None and mask.found:
+            inside_bad = int(np.count_nonzero(mask.contains(*np.nonzero(bad_pixels))))
+            if inside_bad:
+                message = (f"{inside_bad} masked (NaN/inf) pixel(s) lie on the crystal; a rim-normal profile "
+                           "would average over them: draw a --line that avoids them")
+                raise InputError(message, path=image_path)
         frame = rim_normal_profile(mask, pixel_um=pixel_um, calibration=calibration, bin_um=bin_um, column=column)
     if len(frame) < 2:
         raise InputError("the profile holds fewer than 2 points inside the crystal; check the line")

@@ -114,7 +114,11 @@ def _check_shape(shape, dtype, path: Path) -> None:
 def _pick(names: list[str], channel, path: Path) -> int:
     """Index of ``channel`` among ``names`` (name, case-insensitive, or 1-based number)."""
     if channel is None:
-        return 0
+        if len(names) == 1:
+            return 0
+        # calibrating whichever channel happens to come first would be a silent guess
+        message = f"the file holds {len(names)} channels ({', '.join(names)}); choose one with --channel"
+        raise InputError(message, path=path)
     key = str(channel).strip()
     lowered = [n.lower() for n in names]
     if key.lower() in lowered:
@@ -241,10 +245,13 @@ def _read_tiff(path: Path, channel) -> MapImage:
                 raise InputError(message, path=path)
         pixel_um, source = _tiff_pixel_um(tif, page)
         data = None
-        if page.is_contiguous and page.compression == 1 and page.dtype.isnative:
+        if page.is_contiguous and page.compression == 1 and page.predictor in (1, None) and page.fillorder == 1:
+            # tifffile reports the pixel type in native order; the bytes on disk are in the
+            # file's order ('II' little-, 'MM' big-endian), so the memory map must say so
+            on_disk = page.dtype.newbyteorder(tif.byteorder)
             offset = page.dataoffsets[0]
             if offset % page.dtype.itemsize == 0:
-                data = np.memmap(path, dtype=page.dtype, mode="r", offset=offset, shape=page.shape, order="C")
+                data = np.memmap(path, dtype=on_disk, mode="r", offset=offset, shape=page.shape, order="C")
         if data is None:
             data = _tiff_asarray(page, path)
         return MapImage(data, name, names, path, pixel_um, source, data.dtype.kind in "ui")
@@ -286,8 +293,11 @@ def _read_png(path: Path, channel) -> MapImage:
                 img = opened.copy()
     except InputError:
         raise
-    except Image.DecompressionBombError:
-        message = f"image is larger than the {MAX_PIXELS:,} pixels accepted; refusing it as a decompression bomb"
+    except (Image.DecompressionBombError, Image.DecompressionBombWarning):
+        message = (
+            f"image is larger than the {MAX_PIXELS // 2:,} pixels accepted for PNG/JPEG (oversized, or a "
+            "decompression bomb); crop or bin it, or save it as TIFF"
+        )
         raise InputError(message, path=path) from None
     except Exception:
         message = "not a readable PNG/JPEG image (damaged, truncated or another format)"
@@ -353,6 +363,13 @@ def _read_npy(path: Path, channel) -> MapImage:
 _MAX_TEXT_BYTES = 2 << 30
 
 
+def _matrix_number(cell: str) -> float:
+    """``float`` without its underscores (``7_0`` is 70 to Python, a typo in a count matrix)."""
+    if "_" in cell:
+        raise ValueError(cell)
+    return float(cell)
+
+
 def _read_text(path: Path, channel) -> MapImage:
     """A count matrix as text: one image row per line, comma, tab, semicolon or spaces between values."""
     if path.stat().st_size > _MAX_TEXT_BYTES:
@@ -384,14 +401,14 @@ def _read_text(path: Path, channel) -> MapImage:
         if cells and cells[-1] == "":  # trailing delimiter
             cells = cells[:-1]
         try:
-            values = [float(c) for c in cells]
+            values = [_matrix_number(c) for c in cells]
         except ValueError:
             if not rows and not header_skipped:  # a header line of names
                 header_skipped = True
                 continue
             for j, c in enumerate(cells, start=1):
                 try:
-                    float(c)
+                    _matrix_number(c)
                 except ValueError:
                     raise InputError("not a number", path=path, row=i, column=str(j), text=c) from None
         if rows and len(values) != len(rows[0]):

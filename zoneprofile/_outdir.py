@@ -36,6 +36,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from zoneprofile import __version__
+from zoneprofile._paths import reason, shown
 from zoneprofile._validation import InputError
 
 __all__ = ["OutputFolder", "MARKER", "environment_error", "ENVIRONMENT_ERRNOS"]
@@ -61,7 +62,7 @@ def environment_error(exc: OSError, what: str, path) -> InputError | None:
     reason = ENVIRONMENT_ERRNOS.get(exc.errno)
     if reason is None:
         return None
-    return InputError(f"cannot write {what}: {reason}; free space or choose a writable --out", path=path)
+    return InputError(f"cannot write {what}: {reason}; free space or choose a writable --out", path=shown(path))
 
 
 def _process_start(pid: int) -> str | None:
@@ -121,35 +122,37 @@ class OutputFolder:
     def _check(self) -> None:
         p = self.path
         if not p.name or p.name in (".", ".."):
-            raise InputError("give a folder name for --out, not '.' or '..'", path=p)
+            raise InputError("give a folder name for --out, not '.' or '..'", path=shown(p))
         try:
             st = os.stat(p)
         except FileNotFoundError:
             st = None
         except OSError as exc:  # a symlink loop, a name too long, ...
-            raise InputError(f"cannot use this output path: {exc.strerror or exc}", path=p) from None
+            raise InputError(f"cannot use this output path: {reason(exc)}", path=shown(p)) from None
+        except ValueError:  # a NUL byte
+            raise InputError("cannot use this output path: it contains a NUL character", path=shown(p)) from None
         if st is not None:
             if not stat.S_ISDIR(st.st_mode):
                 kind = "a FIFO" if stat.S_ISFIFO(st.st_mode) else (
                     "a device" if stat.S_ISCHR(st.st_mode) or stat.S_ISBLK(st.st_mode) else (
                         "a socket" if stat.S_ISSOCK(st.st_mode) else "a file"))
-                raise InputError(f"output exists and is {kind}, not a folder; choose another --out", path=p)
+                raise InputError(f"output exists and is {kind}, not a folder; choose another --out", path=shown(p))
             if not self.force:
-                raise InputError("output folder exists; pass --force to overwrite it", path=p)
+                raise InputError("output folder exists; pass --force to overwrite it", path=shown(p))
             if not (p / MARKER).is_file():
                 raise InputError(f"output folder exists and holds no earlier zoneprofile output (no {MARKER} "
                                  "file); --force replaces only such folders: remove it yourself or choose "
-                                 "another --out", path=p)
+                                 "another --out", path=shown(p))
         parent = self._parent()
         # the nearest existing ancestor must be a writable folder (missing ones are created)
         probe = parent
         while not probe.exists() and probe != probe.parent:
             probe = probe.parent
         if not probe.is_dir():
-            raise InputError(f"cannot create the output folder: {probe} is not a folder", path=p)
+            raise InputError(f"cannot create the output folder: {probe} is not a folder", path=shown(p))
         if not os.access(probe, os.W_OK | os.X_OK):
             raise InputError(f"cannot write the output folder: {probe} is not writable; choose a writable --out",
-                             path=p)
+                             path=shown(p))
 
     def _parent(self) -> Path:
         return (self.path.parent if str(self.path.parent) else Path(".")).absolute()
@@ -164,7 +167,7 @@ class OutputFolder:
             parent.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
             raise environment_error(exc, "the output folder", self.path) or InputError(
-                f"cannot create the output folder's parent: {exc.strerror or exc}", path=self.path) from None
+                f"cannot create the output folder's parent: {exc.strerror or exc}", path=shown(self.path)) from None
         lock = self._lock_path()
         holder = {"pid": os.getpid(), "host": socket.gethostname(), "process_start": _process_start(os.getpid()),
                   "started_utc": datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
@@ -178,11 +181,11 @@ class OutputFolder:
                     raise InputError(
                         f"another zoneprofile run is writing this output folder (pid {other.get('pid')}, "
                         f"started {other.get('started_utc')}); wait for it to finish or choose another --out",
-                        path=self.path) from None
+                        path=shown(self.path)) from None
                 if other is None and time.time() - _mtime(lock) < 5.0:
                     # a lock being written this very moment by another run: theirs
                     raise InputError("another zoneprofile run is starting in this output folder; "
-                                     "wait for it to finish or choose another --out", path=self.path) from None
+                                     "wait for it to finish or choose another --out", path=shown(self.path)) from None
                 try:  # stale: its holder is gone
                     os.unlink(lock)
                 except FileNotFoundError:
@@ -193,18 +196,18 @@ class OutputFolder:
                 continue
             except OSError as exc:
                 raise environment_error(exc, "the output folder", self.path) or InputError(
-                    f"cannot write beside the output folder: {exc.strerror or exc}", path=self.path) from None
+                    f"cannot write beside the output folder: {exc.strerror or exc}", path=shown(self.path)) from None
             try:
                 with os.fdopen(fd, "w", encoding="utf-8") as fh:
                     fh.write(json.dumps(holder) + "\n")
             except OSError as exc:
                 os.unlink(lock)
                 raise environment_error(exc, "the output folder", self.path) or InputError(
-                    f"cannot write beside the output folder: {exc.strerror or exc}", path=self.path) from None
+                    f"cannot write beside the output folder: {exc.strerror or exc}", path=shown(self.path)) from None
             self.lock = lock
             return
         raise InputError("cannot take the lock of the output folder; another run keeps taking it",
-                         path=self.path)
+                         path=shown(self.path))
 
     @staticmethod
     def _read_lock(lock: Path) -> dict | None:
@@ -309,10 +312,10 @@ class OutputFolder:
         if self.path.exists():
             if not self.force:
                 raise InputError("output folder appeared during the run; it was left alone (pass --force to "
-                                 "replace it)", path=self.path)
+                                 "replace it)", path=shown(self.path))
             if not (self.path / MARKER).is_file():  # appeared while we computed (the lock is ours)
                 raise InputError("output folder appeared during the run and holds no earlier zoneprofile "
-                                 "output; it was left alone and nothing was written", path=self.path)
+                                 "output; it was left alone and nothing was written", path=shown(self.path))
             old = self._parent() / f".{self.path.name}.old"
             shutil.rmtree(old, ignore_errors=True)
             os.replace(self.path, old)

@@ -94,7 +94,9 @@ def build_tasks(campaign: Campaign, *, ship_bytes: bool = False, formats=None) -
 
 
 def _check_out_dir(campaign: Campaign, out: Path, force: bool) -> None:
-    resolved = out.resolve()
+    from zoneprofile._paths import resolve_path
+
+    resolved = resolve_path(out, what="output folder")
     if resolved == campaign.folder or campaign.folder.is_relative_to(resolved):
         message = ("the output folder would replace the campaign's own folder and its inputs; "
                    "choose another --out")

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import logging
 import multiprocessing
+import os
+import signal
 import sys
 import threading
 import time
@@ -120,9 +122,34 @@ def _context():
     return multiprocessing.get_context("spawn")  # pragma: no cover - Windows, macOS defaults
 
 
+#: How often a worker checks that its parent still runs (seconds); workers die within about this.
+WATCH_INTERVAL = 0.25
+
+
+def _watch(stop, parent_pid: int) -> None:
+    while True:
+        if stop.wait(WATCH_INTERVAL) or os.getppid() != parent_pid:
+            os._exit(1)  # the run was stopped or its parent died (kill -9): no orphan keeps computing
+
+
+def _worker_start(stop) -> None:
+    """Initialiser of a worker process: die with the parent, leave Ctrl-C to the parent.
+
+    Ctrl-C reaches every process of the terminal's group; the parent alone
+    handles it (it sets ``stop``). A daemon thread ends the worker within
+    :data:`WATCH_INTERVAL` when ``stop`` is set or when the parent is gone
+    (its parent pid changes when the parent is killed, even by ``kill -9``).
+    """
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    threading.Thread(target=_watch, args=(stop, os.getppid()), daemon=True,
+                     name="zoneprofile-parent-watch").start()
+
+
 def _processes(tasks, process, on_done, workers):
     ctx = _context()
-    executor = ProcessPoolExecutor(max_workers=workers, mp_context=ctx)
+    stop = ctx.Event()
+    executor = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_start,
+                                   initargs=(stop,))
     try:
         futures = {executor.submit(process, task): i for i, task in enumerate(tasks)}
         for future in as_completed(futures):
@@ -137,6 +164,7 @@ def _processes(tasks, process, on_done, workers):
                 record = _failed_record(tasks[i], f"internal error ({type(exc).__name__}): {text}")
             on_done(i, record)
     except BaseException:
+        stop.set()  # workers end within WATCH_INTERVAL; finished crystals are already in the cache
         executor.shutdown(wait=False, cancel_futures=True)
         raise
     executor.shutdown(wait=True)

@@ -13,7 +13,8 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from zoneprofile import __version__
-from zoneprofile._output import atomic_folder, to_jsonable
+from zoneprofile._outdir import OutputFolder
+from zoneprofile._output import to_jsonable
 from zoneprofile._validation import InputError
 from zoneprofile.campaign._cache import ResultCache, task_key
 from zoneprofile.campaign._executors import Progress, execute
@@ -93,7 +94,9 @@ def build_tasks(campaign: Campaign, *, ship_bytes: bool = False, formats=None) -
 
 
 def _check_out_dir(campaign: Campaign, out: Path, force: bool) -> None:
-    resolved = out.resolve()
+    from zoneprofile._paths import resolve_path
+
+    resolved = resolve_path(out, what="output folder")
     if resolved == campaign.folder or campaign.folder.is_relative_to(resolved):
         message = ("the output folder would replace the campaign's own folder and its inputs; "
                    "choose another --out")
@@ -101,10 +104,6 @@ def _check_out_dir(campaign: Campaign, out: Path, force: bool) -> None:
     if campaign.cache_dir is not None and campaign.cache_dir.is_relative_to(resolved):
         message = "the output folder would hold the campaign's cache; choose another --out"
         raise InputError(message, path=out)
-    if out.exists() and not force:
-        raise InputError("output folder exists; pass --force to overwrite it", path=out)
-    if out.exists() and not out.is_dir():
-        raise InputError("output exists and is not a folder", path=out)
 
 
 def _safe_name(text: str) -> str:
@@ -227,10 +226,17 @@ def run_campaign(campaign, out_dir, *, workers: int = 1, scheduler: str | None =
         campaign = load_campaign(campaign, allow_outside=allow_outside)
     out = Path(out_dir)
     _check_out_dir(campaign, out, force)
-    summary = execute_campaign(campaign, workers=workers, scheduler=scheduler, progress=progress, cache=cache,
-                               process=process, formats=formats)
+    # checked (exists, kind, writable) and locked before anything is computed; leftovers of killed runs removed
+    target = OutputFolder(out, force=force, command="run")
+    try:
+        summary = execute_campaign(campaign, workers=workers, scheduler=scheduler, progress=progress, cache=cache,
+                                   process=process, formats=formats)
+    except BaseException:
+        target.release()
+        raise
     summary.out_dir = out
-    with atomic_folder(out, force=force) as tmp:
+    summary.notes[:0] = target.notes
+    with target as tmp:
         write_campaign_outputs(summary, tmp)
     summary.seconds = time.monotonic() - t0
     return summary

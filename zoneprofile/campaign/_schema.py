@@ -104,6 +104,9 @@ BUILTIN = {
     "comment": "",
 }
 
+#: Largest campaign file read (a 10,000-crystal campaign is about 1 MB).
+CAMPAIGN_MAX_BYTES = 64_000_000
+
 _TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache", "defaults", "samples", "crystals")
 _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
@@ -389,8 +392,15 @@ def _resolve_input(ctx, folder: Path, value, where, *, allow_outside: bool) -> t
     text = _text(ctx, value, where)
     if not text.strip():
         raise ctx.fail(where, "empty path")
-    p = Path(text).expanduser()
-    full = (p if p.is_absolute() else folder / p).resolve()
+    from zoneprofile._paths import check_regular_file, resolve_path
+
+    if "\0" in text:
+        raise ctx.fail(where, "the path contains a NUL character")
+    try:
+        p = Path(text).expanduser()
+        full = resolve_path(p if p.is_absolute() else folder / p)
+    except InputError as exc:
+        raise ctx.fail(where, f"input '{_short(text)}': {exc.message}") from None
     try:
         rel = full.relative_to(folder)
     except ValueError:
@@ -401,13 +411,25 @@ def _resolve_input(ctx, folder: Path, value, where, *, allow_outside: bool) -> t
                 "set allow_outside_paths = true in the campaign file or pass --allow-outside",
             ) from None
         rel = None
-    if not full.exists():
-        raise ctx.fail(where, f"input file '{text}' not found (looked for {full})")
-    if full.is_dir():
-        raise ctx.fail(where, f"input '{text}' is a folder, expected a file")
-    if full.stat().st_size == 0:
-        raise ctx.fail(where, f"input file '{text}' is empty")
+    try:
+        missing, folder_given = not full.exists(), full.is_dir()
+    except OSError:  # a name too long and the like: told by the check below
+        missing = folder_given = False
+    if missing:
+        raise ctx.fail(where, f"input file '{_short(text)}' not found (looked for {_short(str(full))})")
+    if folder_given:
+        raise ctx.fail(where, f"input '{_short(text)}' is a folder, expected a file")
+    try:  # FIFOs and devices would block or never end when read
+        check_regular_file(full, what=f"input file '{_short(text)}'")
+    except InputError as exc:
+        raise ctx.fail(where, exc.message) from None
     return full, (rel.as_posix() if rel is not None else str(full))
+
+
+def _short(text: str) -> str:
+    from zoneprofile._paths import shown
+
+    return shown(text)
 
 
 def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
@@ -434,12 +456,11 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         an unknown mineral, element, law or sample, a missing input file, a path
         leading outside the folder, a duplicated crystal.
     """
+    from zoneprofile._paths import read_regular_file, shown
+
     p = Path(path)
-    if not p.exists():
-        raise InputError("campaign file not found; check the path", path=p)
-    if p.is_dir():
-        raise InputError("campaign path is a folder; give the .toml file", path=p)
-    raw = p.read_bytes()
+    # FIFOs, devices, link loops, NUL bytes and overlong names refused here in one line (never blocks)
+    raw = read_regular_file(p, what="campaign file", max_bytes=CAMPAIGN_MAX_BYTES)
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -448,7 +469,10 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         message = " ".join(str(exc).split())
-        raise InputError(f"not a valid TOML file: {message}", path=p) from None
+        raise InputError(f"not a valid TOML file: {message}", path=shown(p)) from None
+    except RecursionError:  # arrays or inline tables nested thousands deep
+        raise InputError("not a valid campaign file: values nested too deeply (a campaign file needs at most "
+                         "three levels)", path=shown(p)) from None
     ctx = _Context(p, text)
     folder = p.resolve().parent
 

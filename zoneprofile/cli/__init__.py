@@ -83,16 +83,55 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         sys.stderr.write("zoneprofile: interrupted\n")
         return 130
+    except BrokenPipeError:
+        return _closed_stdout(args.command)
+    except OSError as exc:
+        told = _environment_fault(exc)
+        if told is None:
+            return _internal_error(args.command, exc)
+        sys.stderr.write(f"zoneprofile {args.command}: {told}\n")
+        return 2
     except Exception as exc:  # an internal error: one line, traceback on request
-        if os.environ.get("ZONEPROFILE_DEBUG"):
-            traceback.print_exc()
-        text = " ".join(str(exc).split()) or type(exc).__name__
-        sys.stderr.write(
-            f"zoneprofile {args.command}: internal error: {type(exc).__name__}: {text} "
-            "(set ZONEPROFILE_DEBUG=1 for details and please report it)\n"
-        )
-        return 1
+        return _internal_error(args.command, exc)
+    try:
+        sys.stdout.flush()
+    except BrokenPipeError:
+        return _closed_stdout(args.command)
     return int(code or 0)
+
+
+def _internal_error(command, exc) -> int:
+    if os.environ.get("ZONEPROFILE_DEBUG"):
+        traceback.print_exception(exc)
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    sys.stderr.write(
+        f"zoneprofile {command}: internal error: {type(exc).__name__}: {text} "
+        "(set ZONEPROFILE_DEBUG=1 for details and please report it)\n"
+    )
+    return 1
+
+
+def _closed_stdout(command) -> int:
+    """Standard output was closed by the reader (``zoneprofile zones ... | head``): one line, exit 2."""
+    try:  # further writes (and the interpreter's final flush) go nowhere instead of raising again
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
+    sys.stderr.write(f"zoneprofile {command}: standard output was closed before the output was written; "
+                     "write to a file with --out instead\n")
+    return 2
+
+
+def _environment_fault(exc: OSError) -> str | None:
+    """One line for a fault of the machine (read-only, full disk, permission), or None."""
+    from zoneprofile._outdir import ENVIRONMENT_ERRNOS
+
+    reason = ENVIRONMENT_ERRNOS.get(exc.errno)
+    if reason is None:
+        return None
+    where = exc.filename if exc.filename is not None else "an output file"
+    return f"{where}: cannot write: {reason}; free space or choose a writable place for the output"
 
 
 if __name__ == "__main__":  # pragma: no cover

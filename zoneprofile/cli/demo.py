@@ -39,7 +39,7 @@ def run(args):
     import time
     from pathlib import Path
 
-    from zoneprofile._output import atomic_folder
+    from zoneprofile._outdir import OutputFolder
     from zoneprofile._validation import InputError
     from zoneprofile.campaign import execute_campaign, load_campaign, write_campaign_outputs
     from zoneprofile.cli.run import report_summary
@@ -54,18 +54,16 @@ def run(args):
     if seed < 0:
         raise InputError(f"--seed must be 0 or more, got {seed}")
     out = Path(args.out)
-    if out.exists() and not args.force:
-        raise InputError("output folder exists; pass --force to overwrite it", path=out)
-    if out.exists() and not out.is_dir():
-        raise InputError("output exists and is not a folder", path=out)
     t0 = time.monotonic()
-    with atomic_folder(out, force=args.force) as tmp:
+    target = OutputFolder(out, force=args.force, command="demo")  # checked and locked before computing
+    with target as tmp:
         made = make_demo(tmp / "campaign", seed=seed)
         campaign = load_campaign(made["campaign"])
         summary = execute_campaign(campaign, workers=workers, progress=not args.quiet,
                                    campaign_path_shown=f"campaign/{CAMPAIGN_NAME}")
         write_campaign_outputs(summary, tmp)
     summary.out_dir = out
+    summary.notes[:0] = target.notes
     summary.seconds = time.monotonic() - t0
     if not args.quiet:
         report_summary(summary)

@@ -210,3 +210,27 @@ def test_no_file_points_outside_the_repository():
             if _OUTSIDE.search(line):
                 found.append(f"{path.relative_to(ROOT)}:{lineno}")
     assert found == [], f"{len(found)} pointers to files outside the repository, e.g. {found[:5]}"
+
+
+def test_minimum_constraints_match_the_floors_in_pyproject():
+    # tests/constraints-minimum.txt pins each direct dependency to the first release of the series
+    # that pyproject.toml names as its floor (so the minimum-versions run tests what pyproject allows)
+    import tomllib
+
+    meta = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))["project"]
+    floors = {}
+    for req in meta["dependencies"] + meta["optional-dependencies"]["test"]:
+        m = re.fullmatch(r"([A-Za-z0-9_.-]+)(\[[^\]]*\])?>=([0-9.]+)", req.split("#")[0].strip())
+        assert m, req
+        floors[m.group(1).lower()] = m.group(3)
+    pins = {}
+    for line in (ROOT / "tests" / "constraints-minimum.txt").read_text(encoding="utf-8").splitlines():
+        line = line.split("#")[0].strip()
+        if line:
+            name, version = line.split("==")
+            pins[name.lower()] = version
+    for name, floor in floors.items():
+        assert name in pins, f"{name} has no pin in constraints-minimum.txt"
+        floor_parts = [int(p) for p in floor.split(".")]
+        pin_parts = [int(p) for p in pins[name].split(".")]
+        assert pin_parts[: len(floor_parts)] == floor_parts, (name, floor, pins[name])

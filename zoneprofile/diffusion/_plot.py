@@ -8,19 +8,13 @@ from __future__ import annotations
 
 import io
 
-import numpy as np
+from zoneprofile._units import format_days, format_days_range
 
 _BLUE, _ORANGE, _VERMILLION, _GREY, _PURPLE = "#0072B2", "#E69F00", "#D55E00", "#7f7f7f", "#CC79A7"
 
 
 def _days_text(d):
-    if d is None or not np.isfinite(d):
-        return "n/a"
-    if d < 1:
-        return f"{d * 24:.2g} h"
-    if d > 3 * 365.25:
-        return f"{d / 365.25:.3g} yr"
-    return f"{d:.3g} d"
+    return format_days(d)
 
 
 def fit_figure(results, *, value_label, an=None, fmt="png") -> bytes:
@@ -41,7 +35,7 @@ def fit_figure(results, *, value_label, an=None, fmt="png") -> bytes:
         t = r.time_days
         if r.resolved:
             title = (f"{r.element}, boundary {r.boundary_um:.1f} µm: {_days_text(t['median'])} "
-                     f"(95%: {_days_text(t['p2_5'])} – {_days_text(t['p97_5'])}) at {r.temperature_c:g} °C")
+                     f"(95%: {format_days_range(t['p2_5'], t['p97_5'])}) at {r.temperature_c:g} °C")
         else:
             title = (f"{r.element}, boundary {r.boundary_um:.1f} µm: not resolved, "
                      f"< {_days_text(t.get('upper_bound'))}")

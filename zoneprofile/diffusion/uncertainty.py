@@ -29,6 +29,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from zoneprofile._units import format_days, format_days_range
 from zoneprofile.diffusion._optimise import _least_squares, _projected_fit, _refit_projected
 
 __all__ = ["FitResult", "propagate", "PERCENTILES"]
@@ -129,8 +130,8 @@ class FitResult:
         if self.resolved:
             lines.append(
                 f"  time = {_fmt_days(t['best'])} (median {_fmt_days(t['median'])}; "
-                f"68%: {_fmt_days(t['p16'])} – {_fmt_days(t['p84'])}; "
-                f"95%: {_fmt_days(t['p2_5'])} – {_fmt_days(t['p97_5'])})"
+                f"68%: {format_days_range(t['p16'], t['p84'])}; "
+                f"95%: {format_days_range(t['p2_5'], t['p97_5'])})"
             )
         elif (self.setup.get("window") or {}).get("dated_alone") is False:
             lines.append("  NOT DATED ALONE: a neighbouring step is too close (see the warning); deferred to the "
@@ -156,13 +157,7 @@ class FitResult:
 
 
 def _fmt_days(d):
-    if d is None or not np.isfinite(d):
-        return "n/a"
-    if d < 1:
-        return f"{d * 24:.3g} h"
-    if d > 3 * 365.25:
-        return f"{d / 365.25:.3g} yr"
-    return f"{d:.3g} d"
+    return format_days(d)
 
 
 def _percentiles(values):

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
+from zoneprofile import _units
 from zoneprofile._output import write_bytes
 from zoneprofile.report._canvas import (
     DPI,
@@ -60,21 +61,8 @@ def slug(text: str) -> str:
 
 
 def format_days(x) -> str:
-    """Readable time: ``'21 d'``, ``'1.2 × 10³ d'`` style kept ASCII: ``'1200 d (3.3 yr)'``."""
-    if x is None:
-        return "n/a"
-    x = float(x)
-    if not math.isfinite(x):
-        return "n/a"
-    if abs(x) < 1:
-        return f"{x * 24:.2g} h"
-    s = f"{x:.3g}" if abs(x) < 1000 else f"{x:.0f}"
-    if "e" in s:
-        s = f"{x:.0f}"
-    out = f"{s} d"
-    if abs(x) >= 365.25:
-        out += f" ({x / 365.25:.2g} yr)"
-    return out
+    """Readable time in a unit chosen by magnitude (the project's one formatter, ``_units``)."""
+    return _units.format_days(x)
 
 
 def _quantity_label(column: str) -> str:
@@ -250,7 +238,7 @@ def _fit_panel(canvas, b, cell):
     td = b.get("time_days") or {}
     tag = "≤ " if not b.get("resolved", True) else ""
     title = (f"{element} at {position:.0f} µm: {tag}{format_days(td.get('median'))}\n"
-             f"95%: {format_days(td.get('p2_5'))} – {format_days(td.get('p97_5'))}")
+             f"95%: {_units.format_days_range(td.get('p2_5'), td.get('p97_5'))}")
     ax.frame(xlabel="distance from rim (µm)", ylabel=f"{element} (ppm)", title=title)
     return entries
 

@@ -198,12 +198,9 @@ def neighbour_steps(x, y, b0, *, an_x=None, an=None, given=None, noise=None, max
         warm.clear()
         warm.update({m: float(sp) for m, sp in zip(marks, fitted[1])})
 
-    # a given step within this boundary's own apparent zone (or three point spacings) is kept only
-    # when the track shows it as a step of its own: zoning may list one diffused step twice
-    near = max(3.0 * t_spacing, 3.0 * float(np.median(np.diff(x))))
-    own = erf_step(x, y, b0, half_range_um=near)
-    if own is not None:
-        near = max(near, ZONE_SDS * own["spread_um"])
+    # a given step within four point spacings is kept only when the track shows it as a step of its
+    # own: zoning may list one step twice (in An and in the element, a few µm apart)
+    near = 4.0 * max(t_spacing, float(np.median(np.diff(x))))
     found = [(p, "given") for p in given if abs(p - b0) > near]
     inside = [m for m in [b0] + [p for p, _ in found] if tx[0] < m < tx[-1]]
     if tx.size < 3 * len(inside) + 8:

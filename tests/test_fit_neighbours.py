@@ -102,13 +102,15 @@ def test_a_wide_step_is_one_step():
     from scipy.special import ndtr
 
     x = np.arange(0.5, 120.0, 1.0)
-    s = 6.0
-    y = 80.0 + 6.0 * ndtr((x - 60.0) / s) + np.random.default_rng(7).normal(0.0, 0.08, x.size)
+    s = 8.0  # with this seed the old rule cut the profile at 64.5 µm (a flank point taken for a step)
+    y = 80.0 + 6.0 * ndtr((x - 60.0) / s) + np.random.default_rng(0).normal(0.0, 0.08, x.size)
     r = fit_boundary(x, y, element="FeMg", mineral="olivine", temperature_c=1100.0, fo2_pa=1e-6, beam_um=1.0,
                      boundary_um=60.0, direction="001", draws=100, noise_refits=10)
     assert r.setup["window"]["neighbours"] == []
     assert r.setup["segment_um"][0] <= 1.0 and r.setup["segment_um"][1] >= 119.0
     assert r.time_days["statement"] == "date"
+    # the whole step is seen: 2·D·t = s² (µm²) to the noise
+    assert 2 * 10 ** (r.log10_dt_m2["best"] + 12) == pytest.approx(s * s, rel=0.1)
 
 
 def test_a_young_step_near_the_rim_is_found_before_the_window_is_drawn():

@@ -92,6 +92,7 @@ BUILTIN = {
     "obliquity_deg": None,
     "fo2_pa": None,
     "pressure_mpa": None,
+    "direction": None,
     "solver_cells": None,
     "sheet": None,
     "comment": "",
@@ -101,7 +102,8 @@ _TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache"
 _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
     "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
-    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "comment",
+    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "direction", "solver_cells", "sheet",
+    "comment",
 )
 _CRYSTAL_KEYS = _SETTING_KEYS + (
     "sample", "id", "traverse", "trace", "map", "spots", "line", "pixel_um", "channel", "width_px", "rim_normal",
@@ -350,6 +352,15 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = _number(ctx, value, w, low=1e-20, high=1e5, unit="Pa")
         elif key == "pressure_mpa":
             out[key] = _number(ctx, value, w, low=0, high=5000, unit="MPa")
+        elif key == "direction":
+            from zoneprofile.diffusion.orientation import parse_direction
+
+            text = ",".join(str(v) for v in value) if isinstance(value, list) else _text(ctx, value, w)
+            try:
+                parse_direction(text)
+            except InputError as exc:
+                raise ctx.fail(w, exc.message) from None
+            out[key] = text
         elif key == "solver_cells":
             out[key] = _number(ctx, value, w, low=50, high=5000, integer=True)
         elif key in ("sheet", "comment"):

@@ -512,8 +512,14 @@ def _fit_boundary(
     if rim_auto:
         rim_kind = "open"  # provisional; chosen by the data below
 
+    orientation = None
+    if getattr(law_obj, "family", None) == "olivine-femg":
+        # the fit runs on the [001] law; the orientation (axis, EBSD angles or unknown) scales the time
+        from zoneprofile.diffusion.orientation import parse_direction
+
+        orientation = parse_direction(direction)
     law_kwargs = {"fo2_pa": fo2_pa, "pressure_pa": None if pressure_mpa is None else float(pressure_mpa) * 1e6,
-                  "direction": direction}
+                  "direction": None if orientation is not None else direction}
     coupling = None
     x_an_cells = None
     an_info = {}
@@ -697,6 +703,15 @@ def _fit_boundary(
     td.setdefault("lower_bound", None)
     td.setdefault("statement", "date" if result.resolved else
                   ("upper_bound" if td.get("upper_bound") is not None else "none"))
+    orientation_entry = None
+    if orientation is not None:
+        from zoneprofile.diffusion import orientation as _orientation
+        from zoneprofile.diffusion.laws.olivine import ANISOTROPY_001_OVER_100
+
+        _orientation.apply(result, orientation, ANISOTROPY_001_OVER_100, seed)
+        orientation_entry = orientation.to_dict(ANISOTROPY_001_OVER_100)
+        if not orientation.known:
+            result.warnings.append(_orientation.UNKNOWN_WARNING)
     window_entry = None
     if plan is not None and _depth == 0:
         spread = _window.fitted_spread_um(best[0], beam_sigma_um(beam_um, beam_shape))
@@ -732,7 +747,8 @@ def _fit_boundary(
         "beam_um_estimated_from_an": beam_from_an,
         "resolution_sd_um": math.sqrt(resolution_var_um2), "grid_cells": grid.n,
         "solver": "implicit Crank-Nicolson with Picard iteration" if nonlinear else "spectral (eigendecomposition)",
-        "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa, "direction": direction,
+        "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa,
+        "direction": orientation_entry if orientation is not None else direction,
         "path": None if path is None else path.to_dict(),
         "segment_um": [float(x[0]), float(x[-1])],
         "undiffused_step_delta_chi2": floor_delta_chi2,

@@ -310,6 +310,7 @@ def _fit_boundary(
     neighbours_um=None,
     _plan=None,
     _depth=0,
+    _shape_c=None,
 ):
     """Fit a diffusion model to one boundary of a profile and date it.
 
@@ -373,6 +374,11 @@ def _fit_boundary(
     FitResult
     """
     call = {k: v for k, v in locals().items() if not k.startswith("_")}
+    if path is not None and _shape_c is None:
+        # on a T–t path: the shape at the path's effective temperature, the time along the path
+        from zoneprofile.diffusion._pathfit import fit_on_path
+
+        return fit_on_path(_fit_boundary, call, path)
     from zoneprofile.diffusion.laws import default_law, get_law
 
     el, mi, x_all, y_all = _check_inputs(distance_um, value, element, mineral, temperature_c)
@@ -700,6 +706,13 @@ def _fit_boundary(
     result = propagate(context)
     result.warnings = warnings + result.warnings
     td = result.time_days
+    path_effective = None
+    if path is not None:
+        from zoneprofile.diffusion._pathfit import effective_temperature_c
+
+        comp_ref = problem.law_composition(**problem.reference)
+        path_effective = effective_temperature_c(
+            path, lambda temps: law_obj.d_m2_s(np.maximum(temps, 1.0), **comp_ref), td.get("best"))
     td.setdefault("lower_bound", None)
     td.setdefault("statement", "date" if result.resolved else
                   ("upper_bound" if td.get("upper_bound") is not None else "none"))
@@ -750,6 +763,7 @@ def _fit_boundary(
         "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa,
         "direction": orientation_entry if orientation is not None else direction,
         "path": None if path is None else path.to_dict(),
+        "path_effective_c": path_effective,
         "segment_um": [float(x[0]), float(x[-1])],
         "undiffused_step_delta_chi2": floor_delta_chi2,
         "window": window_entry,

@@ -140,7 +140,8 @@ def test_result_round_trip_and_report():
 
 def test_auto_boundary_keeps_to_its_own_zones():
     # two diffused steps (Crank eq. 2.14 erf each, far apart): the largest is dated on the part of the
-    # profile between the midpoints to its neighbours, so the other step does not bias it
+    # profile beyond the other step's diffused zone (its centre + 2.5 s, s = √(2·D·t) = √32 µm), so the
+    # other step does not bias it
     from scipy.special import erf
 
     x = np.arange(0.5, 160.0, 1.0)
@@ -150,7 +151,8 @@ def test_auto_boundary_keeps_to_its_own_zones():
     y = y + np.random.default_rng(0).normal(0, 0.2, x.size)
     r = fit_boundary(x, y, element="Ti", mineral="quartz", temperature_c=800.0, draws=50, noise_refits=5)
     assert r.boundary_um == pytest.approx(110.0, abs=0.5)
-    assert r.setup["segment_um"][0] > 60.0
+    assert r.setup["segment_um"][0] >= 40.0 + 2.5 * math.sqrt(2 * dt) - 1.0
+    assert r.setup["window"]["dated_alone"] is True
     assert 10 ** (r.log10_dt_m2["best"] + 12) == pytest.approx(dt, rel=0.1)
 
 

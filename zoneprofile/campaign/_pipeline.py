@@ -172,6 +172,7 @@ def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window
         obliquity_sd_deg=obliquity_sd,
         fo2_pa=params.get("fo2_pa"),
         pressure_mpa=params.get("pressure_mpa"),
+        direction=params.get("direction"),
         **({"n_cells": int(params["solver_cells"])} if params.get("solver_cells") else {}),
         budget=_budget_options(params),
     )

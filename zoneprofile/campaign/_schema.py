@@ -92,6 +92,7 @@ BUILTIN = {
     "obliquity_deg": None,
     "fo2_pa": None,
     "pressure_mpa": None,
+    "direction": None,
     "solver_cells": None,
     "section_obliquity": True,
     "beam_sd_um": None,
@@ -111,7 +112,8 @@ _TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache"
 _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
     "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
-    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "solver_cells", "sheet", "model", "comment",
+    "laws", "noise_sd", "include_flagged", "obliquity_deg", "fo2_pa", "pressure_mpa", "direction", "solver_cells", "sheet",
+    "model", "comment",
     "section_obliquity", "beam_sd_um", "growth_width_sd_um", "fo2_buffer", "fo2_delta_log", "partition_a_sd_j_mol",
 )
 _CRYSTAL_KEYS = _SETTING_KEYS + (
@@ -381,6 +383,15 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = _number(ctx, value, w, low=-10, high=10)
         elif key == "partition_a_sd_j_mol":
             out[key] = _number(ctx, value, w, low=0, high=1e6, unit="J/mol")
+        elif key == "direction":
+            from zoneprofile.diffusion.orientation import parse_direction
+
+            text = ",".join(str(v) for v in value) if isinstance(value, list) else _text(ctx, value, w)
+            try:
+                parse_direction(text)
+            except InputError as exc:
+                raise ctx.fail(w, exc.message) from None
+            out[key] = text
         elif key == "solver_cells":
             out[key] = _number(ctx, value, w, low=50, high=5000, integer=True)
         elif key in ("sheet", "comment"):

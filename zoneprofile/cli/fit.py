@@ -62,7 +62,11 @@ def configure(parser):
     parser.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0)")
     parser.add_argument("--fo2-pa", type=float, metavar="P", help="oxygen fugacity, Pa (olivine Fe-Mg)")
     parser.add_argument("--pressure-mpa", type=float, metavar="P", help="pressure, MPa (default: the law's 0.1 MPa)")
-    parser.add_argument("--direction", metavar="DIR", help="crystallographic direction of the traverse, e.g. [001]")
+    parser.add_argument("--direction", metavar="DIR",
+                        help="direction of the traverse in the crystal: an axis ([100], [010], [001]) or EBSD "
+                             "angles 'α,β,γ' (degrees to [100], [010], [001]). Olivine without it: orientation "
+                             "unknown, taken as uniform over the sphere (a wider interval and a warning), never "
+                             "silently [001]")
     parser.add_argument("--an-from", metavar="TABLE",
                         help="read An from this second table (e.g. a microprobe traverse of the same line)")
     parser.add_argument("--an", type=float, metavar="MOL",

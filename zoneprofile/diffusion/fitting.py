@@ -229,6 +229,38 @@ def _spot_from_an_step(grid, an_x, an_vals, b0, window, spacing):
     return fwhm
 
 
+def _neighbour_spreads(call, b0, plan):
+    """Spread (µm, √(2·D·t + σ_beam²)) and reach of each neighbour from a quick fit of it alone, by index.
+
+    The reach is the change the neighbour's fitted diffusion made to the
+    profile (model minus its initial condition) on its model grid.
+
+    The quick fit uses the same data and conditions, the other steps (this
+    boundary included) as its neighbours, no Monte Carlo to speak of and no
+    judgement of its own window; a neighbour that cannot be fitted keeps its
+    first estimate.
+    """
+    from zoneprofile.diffusion.resolution import beam_sigma_um
+
+    out = {}
+    for i, n in enumerate(plan["neighbours"]):
+        others = [b0] + [m["position_um"] for j, m in enumerate(plan["neighbours"]) if j != i]
+        quick = {**call, "boundary_um": n["position_um"], "boundary_window_um": None, "neighbours_um": others,
+                 "segment_um": None, "draws": 10, "noise_refits": 0, "temperature_sd_c": 0.0, "path": None,
+                 "obliquity_deg": None, "obliquity_sd_deg": 0.0, "dip_deg": None,
+                 # only the best fit is used: no uncertainty terms beyond the data
+                 "budget": {"section_obliquity": False, "law_spread": False, "an_noise": False,
+                            "beam_sd_um": 0.0, "growth_width_sd_um": 0.0}}
+        try:
+            r = _fit_boundary(**quick, _depth=1)
+        except InputError:
+            continue
+        out[i] = (_window.fitted_spread_um(r.parameters["log10_dt_m2"]["value"],
+                                           beam_sigma_um(r.setup["beam_um"], r.setup["beam_shape"])),
+                  getattr(r, "reach", None))
+    return out
+
+
 def _single_threaded(func):
     """Run ``func`` with OpenBLAS on one thread (small matrices; see ``_blas``)."""
     import functools
@@ -280,6 +312,9 @@ def _fit_boundary(
     value_name=None,
     neighbours_um=None,
     budget=None,
+    _plan=None,
+    _depth=0,
+    _shape_c=None,
 ):
     """Fit a diffusion model to one boundary of a profile and date it.
 
@@ -349,6 +384,12 @@ def _fit_boundary(
     -------
     FitResult
     """
+    call = {k: v for k, v in locals().items() if not k.startswith("_")}
+    if path is not None and _shape_c is None:
+        # on a T–t path: the shape at the path's effective temperature, the time along the path
+        from zoneprofile.diffusion._pathfit import fit_on_path
+
+        return fit_on_path(_fit_boundary, call, path)
     from zoneprofile.diffusion.laws import default_law, get_law
 
     el, mi, x_all, y_all = _check_inputs(distance_um, value, element, mineral, temperature_c)
@@ -441,10 +482,20 @@ def _fit_boundary(
     if not x_all[0] <= b0 <= x_all[-1]:
         raise InputError(f"boundary {b0:g} µm lies outside the profile ({x_all[0]:g}–{x_all[-1]:g} µm)")
     # ---- window: no neighbouring step inside, no cut edge inside this boundary's diffused zone
-    plan = None
-    if segment_um is None or neighbours_um is not None:
+    plan = _plan
+    if plan is None and (segment_um is None or neighbours_um is not None):
         plan = _window.plan(x, y, b0, an_x=an_x if needs_an else None, an=an_vals if needs_an else None,
                             given=neighbours_um, noise=None if sd is None else float(np.median(sd)))
+        if plan["neighbours"] and needs_an and mi == "plagioclase":
+            # a trace element in plagioclase keeps a step where An steps however long it diffused,
+            # so a neighbour's reach cannot be read off its shape: fit each neighbour alone, quickly
+            # (between the midpoints to its own neighbours), and draw this window from their fits
+            if _depth == 0:
+                plan = _window.redraw(plan, x, b0, spreads=_neighbour_spreads(call, b0, plan),
+                                      how="quick fit of the neighbour alone (its D·t and the spot)")
+            else:
+                plan = _window.redraw(plan, x, b0, midpoints=True)
+    if plan is not None and plan.get("lo_um") is not None and plan["edges"].get("rimward") != "given segment":
         keep = (x >= plan["lo_um"]) & (x <= plan["hi_um"])
         if np.sum(keep & (x < b0)) >= _MIN_SIDE_POINTS and np.sum(keep & (x > b0)) >= _MIN_SIDE_POINTS:
             x, y = x[keep], y[keep]
@@ -453,7 +504,7 @@ def _fit_boundary(
                 segment_um = (plan["lo_um"], plan["hi_um"])
             spacing = float(np.median(np.diff(x)))
     elif segment_um is not None:
-        plan = {"neighbours": [], "lo_um": float(segment_um[0]), "hi_um": float(segment_um[1]),
+        plan = {"neighbours": [], "lo_um": float(segment_um[0]), "hi_um": float(segment_um[1]), "noise": noise,
                 "edges": {"rimward": "given segment", "coreward": "given segment"}}
     n_left, n_right = int(np.sum(x < b0)), int(np.sum(x > b0))
     if min(n_left, n_right) < _MIN_SIDE_POINTS:
@@ -491,8 +542,14 @@ def _fit_boundary(
     if rim_auto:
         rim_kind = "open"  # provisional; chosen by the data below
 
+    orientation = None
+    if getattr(law_obj, "family", None) == "olivine-femg":
+        # the fit runs on the [001] law; the orientation (axis, EBSD angles or unknown) scales the time
+        from zoneprofile.diffusion.orientation import parse_direction
+
+        orientation = parse_direction(direction)
     law_kwargs = {"fo2_pa": fo2_pa, "pressure_pa": None if pressure_mpa is None else float(pressure_mpa) * 1e6,
-                  "direction": direction}
+                  "direction": None if orientation is not None else direction}
     coupling = None
     x_an_cells = None
     an_info = {}
@@ -678,14 +735,34 @@ def _fit_boundary(
     result = propagate(context)
     result.warnings = warnings + result.warnings
     td = result.time_days
+    path_effective = None
+    if path is not None:
+        from zoneprofile.diffusion._pathfit import effective_temperature_c
+
+        comp_ref = problem.law_composition(**problem.reference)
+        path_effective = effective_temperature_c(
+            path, lambda temps: law_obj.d_m2_s(np.maximum(temps, 1.0), **comp_ref), td.get("best"))
     td.setdefault("lower_bound", None)
     td.setdefault("statement", "date" if result.resolved else
                   ("upper_bound" if td.get("upper_bound") is not None else "none"))
+    orientation_entry = None
+    if orientation is not None:
+        from zoneprofile.diffusion import orientation as _orientation
+        from zoneprofile.diffusion.laws.olivine import ANISOTROPY_001_OVER_100
+
+        _orientation.apply(result, orientation, ANISOTROPY_001_OVER_100, seed)
+        orientation_entry = orientation.to_dict(ANISOTROPY_001_OVER_100)
+        if not orientation.known:
+            result.warnings.append(_orientation.UNKNOWN_WARNING)
     window_entry = None
-    if plan is not None:
+    if plan is not None and _depth == 0:
         spread = _window.fitted_spread_um(best[0], beam_sigma_um(beam_um, beam_shape))
-        alone, reasons = _window.verdict(float(best[1]), spread, plan["neighbours"], plan["lo_um"], plan["hi_um"],
-                                         float(x_all[0]), float(x_all[-1]))
+        cells_best, cells_0 = model0.cells(best)
+        inside = (grid.centres_um >= x[0]) & (grid.centres_um <= x[-1])
+        step_size = float(np.ptp(cells_0[inside])) if np.any(inside) else float(np.ptp(y))
+        alone, reasons = _window.verdict(float(best[1]), spread, plan, x, step_size=step_size,
+                                         model_lo_um=float(grid.faces_um[0]), model_hi_um=float(grid.faces_um[-1]),
+                                         rim_modelled=bool(at_rim))
         window_entry = _window.describe(plan, float(best[1]), spread, alone, reasons)
         if not alone:
             _window.defer(result, reasons)
@@ -696,6 +773,10 @@ def _fit_boundary(
     result.boundary_fixed = bool(fixed)
     result.an_profile = an_info
     result.d_ref_m2_s = d_ref0
+    if _depth == 1:
+        # for the boundary that asked for this quick fit: how far this step's diffusion reaches
+        cells_best, cells_0 = model0.cells(best)
+        result.reach = (np.asarray(grid.centres_um, float).copy(), np.asarray(cells_best - cells_0, float))
     result.setup = {
         "mineral": mi, "law_citation": law_obj.citation, "law_status": law_obj.status,
         "initial_condition": "melt-equilibrium" if coupling == "an" else "step",
@@ -708,8 +789,10 @@ def _fit_boundary(
         "beam_um_estimated_from_an": beam_from_an,
         "resolution_sd_um": math.sqrt(resolution_var_um2), "grid_cells": grid.n,
         "solver": "implicit Crank-Nicolson with Picard iteration" if nonlinear else "spectral (eigendecomposition)",
-        "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa, "direction": direction,
+        "fo2_pa": fo2_pa, "pressure_mpa": pressure_mpa,
+        "direction": orientation_entry if orientation is not None else direction,
         "path": None if path is None else path.to_dict(),
+        "path_effective_c": path_effective,
         "segment_um": [float(x[0]), float(x[-1])],
         "undiffused_step_delta_chi2": floor_delta_chi2,
         "window": window_entry,

@@ -241,6 +241,16 @@ def _refits_stable(before, after) -> bool:
     return bool(np.max(np.abs(a - b)) <= STABLE_TOLERANCE_LOG10)
 
 
+def _data_seed(ctx) -> int:
+    """Seed of the noise refits: a hash of the fitted points, their weights and the best fit."""
+    import hashlib
+
+    h = hashlib.sha256()
+    for a in (ctx["problem"].x_um, ctx["problem"].y, ctx["weights"], ctx["best"]):
+        h.update(np.ascontiguousarray(np.asarray(a, float)).tobytes())
+    return int.from_bytes(h.digest()[:8], "big")
+
+
 def _mixture_quantile(q, sd, shifts, weights):
     """q-quantile of Σ wᵢ·N(sᵢ, sd) (deterministic: no draws)."""
     from scipy.optimize import brentq
@@ -314,7 +324,10 @@ def propagate(ctx) -> FitResult:
     law = problem.law
     warnings = []
 
-    thetas, noise_method = _noise_offsets(ctx, rng)
+    # the noise refits resample the profile with a generator keyed by the data, not by the seed: the
+    # analytical-noise part, and with it the verdict (resolved or an upper bound), is a function of
+    # the data alone, so no seed can flip it (docs/fitting-and-uncertainty.md)
+    thetas, noise_method = _noise_offsets(ctx, np.random.default_rng(_data_seed(ctx)))
     log_noise = thetas[:, 0]
     shape_fn, nodes = _temperature_shape(ctx)
 
@@ -377,7 +390,30 @@ def propagate(ctx) -> FitResult:
     log_an = np.zeros(n_draws)
     an_offsets = bud.an_noise_offsets(ctx, ctx["seed"]) if options.an_noise else np.zeros(0)
     if an_offsets.size > 2:
-        log_an = float(np.sqrt(np.mean(an_offsets**2))) * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+        # robust sd about the best fit (1.4826·median |offset|): a refit that jumps to another
+        # mode of an unresolved profile must not blow the term up
+        an_sd = 1.4826 * float(np.median(np.abs(an_offsets)))
+        log_an = an_sd * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+    # --- resolution (deterministic given the converged refits: a seed does not decide it)
+    dt_um2 = 10.0 ** (best[0] + 12.0)
+    res_var = ctx["resolution_var_um2"]
+    p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
+    floor_delta = ctx.get("floor_delta_chi2")
+    step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
+    # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
+    q_low = _mixture_quantile(0.025, sd_noise, shifts, wts)
+    dt_low_um2 = 10.0 ** (best[0] + q_low + 12.0)
+    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected
+                    and not at_ceiling)
+    if not resolved:
+        # the An-noise and partition sensitivities are refits about a best fit that the data do not
+        # separate from an undiffused step: not applied to an upper bound (shown in the budget only)
+        applied_an_partition = False
+        log_an_shown, log_partition_shown = log_an, log_partition
+        log_an, log_partition = np.zeros(n_draws), np.zeros(n_draws)
+    else:
+        applied_an_partition = True
+        log_an_shown, log_partition_shown = log_an, log_partition
     # m², D_ref(T_k)·t of the apparent profile; draws stay inside the range of D·t the fit searched
     log_tau = np.clip(best[0] + g + eps + log_partition + log_an, log_lo, log_hi)
 
@@ -479,17 +515,6 @@ def propagate(ctx) -> FitResult:
     if n_inf:
         warnings.append(f"{n_inf} of {n_draws} draws give no finite time")
 
-    # --- resolution (deterministic given the converged refits: a seed does not decide it)
-    dt_um2 = 10.0 ** (best[0] + 12.0)
-    res_var = ctx["resolution_var_um2"]
-    p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
-    floor_delta = ctx.get("floor_delta_chi2")
-    step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
-    # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
-    q_low = _mixture_quantile(0.025, sd_noise, shifts, wts)
-    dt_low_um2 = 10.0 ** (best[0] + q_low + 12.0)
-    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected
-                    and not at_ceiling)
     if not step_rejected:
         warnings.append(
             f"an undiffused step seen through the spot fits the data about as well (Δχ² = {floor_delta:.2g} "
@@ -543,8 +568,8 @@ def propagate(ctx) -> FitResult:
     budget["law_parameters"] = sd_of(np.log10(law.d_m2_s(t0, perturb=perturb, **comp))) if perturb else 0.0
     spread = bud.law_spread(law, t0, comp) if options.law_spread else None
     budget["law_spread_systematic"] = 0.0 if spread is None else spread["sd_log10"]
-    budget["partition_coefficients"] = sd_of(log_partition)
-    budget["an_noise"] = sd_of(log_an)
+    budget["partition_coefficients"] = sd_of(log_partition_shown)
+    budget["an_noise"] = sd_of(log_an_shown)
     budget["beam_size"] = sd_of(np.log10(corrected(np.full(n_draws, best[0]), s2_drawn, 0.0, factor_best))
                                 - log_best)
     budget["growth_width"] = sd_of(np.log10(corrected(np.full(n_draws, best[0]), s2_assumed, sg2, factor_best))
@@ -575,7 +600,8 @@ def propagate(ctx) -> FitResult:
                    "shared_seed": shared_seed, "traverse_seed": traverse_seed,
                    "beam_sd_um": beam_sd, "growth_width_sd_um": growth_sd,
                    "partition_a_sd_j_mol": a_sd or None, "fo2_buffer": options.fo2_buffer,
-                   "fo2_delta_log": options.fo2_delta_log if options.fo2_buffer else None}
+                   "fo2_delta_log": options.fo2_delta_log if options.fo2_buffer else None,
+                   "an_noise_and_partition_in_draws": applied_an_partition}
 
     # --- curves for plotting
     x = problem.x_um

@@ -208,12 +208,12 @@ def _noise_offsets(ctx, rng):
             return _projected_fit(model, y_stars, weights, best, lower, upper, vary)[0]
 
         thetas = round_of(n_refits)
-        while thetas.shape[0] < MAX_NOISE_REFITS:
+        # the first round counts as the doubling of its own first half
+        stable = n_refits >= 20 and _refits_stable(thetas[: n_refits // 2, 0], thetas[:, 0])
+        while not stable and thetas.shape[0] < MAX_NOISE_REFITS:
             more = np.vstack([thetas, round_of(min(thetas.shape[0], MAX_NOISE_REFITS - thetas.shape[0]))])
             stable = _refits_stable(thetas[:, 0], more[:, 0])
             thetas = more
-            if stable:
-                break
         return thetas, f"residual bootstrap, {thetas.shape[0]} refits (grown until stable)"
     y_stars = [pred + rng.choice(scaled, size=n, replace=True) / weights for _ in range(n_refits)]
     for y_star in y_stars:
@@ -384,16 +384,21 @@ def propagate(ctx) -> FitResult:
             a_sd = bud.DEFAULT_PARTITION_A_SD_FRACTION * abs(problem.partition_ab[0])
             defaults_used["partition_a_sd_j_mol"] = (
                 f"{a_sd:.3g} J/mol ({bud.DEFAULT_PARTITION_A_SD_FRACTION:.0%} of |A|; the model gives no sd)")
-        slope, a_sd = bud.partition_term(ctx, float(a_sd))
+        if shape_fn is not None and getattr(law, "temperature_separable", True):
+            # the shape depends on T only through A/RT (B/RT scales the values, which are fitted):
+            # A + δA at T is the shape at T' = T·A/(A + δA), so the slope comes free from the
+            # temperature refits: d log τ / dA = g'(0) · (−T_K / A)
+            a0 = float(problem.partition_ab[0])
+            slope = float(shape_fn.deriv()(0.0)) * (-(t0 + 273.15) / a0) if a0 else 0.0
+        else:
+            slope, a_sd = bud.partition_term(ctx, float(a_sd))
         log_partition = slope * a_sd * bud.shared_normals(shared_seed, n_draws, "partition A")
-    # An noise: refits with the An points perturbed by their own scatter
+    # An noise: the An levels either side of the boundary, from two refits (deterministic)
     log_an = np.zeros(n_draws)
-    an_offsets = bud.an_noise_offsets(ctx, ctx["seed"]) if options.an_noise else np.zeros(0)
-    if an_offsets.size > 2:
-        # robust sd about the best fit (1.4826·median |offset|): a refit that jumps to another
-        # mode of an unresolved profile must not blow the term up
-        an_sd = 1.4826 * float(np.median(np.abs(an_offsets)))
-        log_an = an_sd * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+    if options.an_noise:
+        an_sd = bud.an_noise_sd(ctx)
+        if an_sd > 0:
+            log_an = an_sd * bud.shared_normals(ctx["seed"], n_draws, "An noise")
     # --- resolution (deterministic given the converged refits: a seed does not decide it)
     dt_um2 = 10.0 ** (best[0] + 12.0)
     res_var = ctx["resolution_var_um2"]

@@ -498,13 +498,22 @@ def propagate(ctx) -> FitResult:
         time_days = tau_m2 / d_draw / SECONDS_PER_DAY
         best_days = tau_best / float(law.d_m2_s(t0, **comp)) / SECONDS_PER_DAY
     else:
+        def comp_at(temp):
+            if fo2_note is None:
+                return comp
+            from zoneprofile.diffusion.laws.buffers import fo2_buffer_pa
+
+            return {**comp, "fo2_pa": fo2_buffer_pa(options.fo2_buffer, temp, delta_log=options.fo2_delta_log)}
+
         def d_fn(temp, rows):
             pert = {k: v[rows] for k, v in perturb.items()} or None
-            return law.d_m2_s(np.maximum(temp, 1.0), perturb=pert, **comp)
+            temp = np.maximum(temp, 1.0)
+            return law.d_m2_s(temp, perturb=pert, **comp_at(temp))
 
         time_days, notes = durations_days(path, d_fn, tau_m2, shift_c=t_draw - t0)
         warnings += notes
-        bd, _ = durations_days(path, lambda temp, rows: law.d_m2_s(np.maximum(temp, 1.0), **comp),
+        bd, _ = durations_days(path, lambda temp, rows: law.d_m2_s(np.maximum(temp, 1.0),
+                                                                  **comp_at(np.maximum(temp, 1.0))),
                                np.array([tau_best]))
         best_days = float(bd[0])
         warnings.append("non-isothermal path: the profile shape was modelled at the path's starting "

@@ -170,10 +170,19 @@ def _mg_case(seed, rel_sd=0.03):
     return pos, mg, an_meas, beam, b, time_days, rim
 
 
+#: what the synthetic truth makes exact: no section obliquity, a sharp initial step, the stated spot,
+#: the An and partition coefficients used to make it
+EXACT_CONDITIONS = {"section_obliquity": False, "growth_width_sd_um": 0.0, "beam_sd_um": 0.0,
+                    "an_noise": False, "partition_a_sd_j_mol": 0.0}
+
+
 def _fit_mg(seed, rel_sd=0.03, *, give_beam=True):
     pos, mg, an, beam, b, t_true, rim = _mg_case(seed, rel_sd)
+    # the truth's temperature, section, spot and initial step are exact: say so, so the interval is the
+    # profile's own (the complete budget's coverage is tested in test_budget_coverage.py)
     r = fit_boundary(pos, mg, element="Mg", mineral="plagioclase", temperature_c=900.0, an=an,
-                     beam_um=beam if give_beam else None, rim=rim, draws=400, noise_refits=20, seed=seed)
+                     beam_um=beam if give_beam else None, rim=rim, draws=400, noise_refits=20, seed=seed,
+                     temperature_sd_c=0.0, budget=EXACT_CONDITIONS)
     return r, t_true, b
 
 
@@ -247,7 +256,7 @@ def test_step_sharper_than_beam_from_independent_reference():
     pos, mg, an_meas = session_table(rng, x, c, an, length_um=70.0, beam_um=3.0)
     for beam in (3.0, None):  # with the beam, and with the spot estimated from the An step
         r = fit_boundary(pos, mg, element="Mg", mineral="plagioclase", temperature_c=900.0, an=an_meas,
-                         beam_um=beam, draws=200, noise_refits=15)
+                         beam_um=beam, draws=200, noise_refits=15, temperature_sd_c=0.0)
         assert r.resolved is False
         # an honest upper bound: above the truth, and not absurdly loose
         assert 0.05 < r.time_days["upper_bound"] < 20.0

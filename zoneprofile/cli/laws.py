@@ -124,6 +124,7 @@ def run(args) -> int:
         for model in models:
             lines.append(model.id + ("  [default]" if model.id == "bindeman1998" else ""))
             lines.append(f"  {model.formula}; status {model.status}")
+            lines.append(_verified_line(model.id))
             for el in model.elements if hasattr(model, "parameters") else ():
                 a, b = model.parameters(el)
                 lines.append(f"  {el}: A = {a / 1e3:g} kJ/mol, B = {b / 1e3:g} kJ/mol")
@@ -137,6 +138,13 @@ def run(args) -> int:
     return 0
 
 
+def _verified_line(law_id) -> str:
+    from zoneprofile.diffusion.laws.sources import verification
+
+    word, text = verification(law_id)
+    return f"  source seen: {word}" + (f" — {text}" if text else "")
+
+
 def _law_lines(law, defaults, *, detail=False) -> list[str]:
     head = law.id
     for (e, m), law_id in defaults.items():
@@ -144,6 +152,7 @@ def _law_lines(law, defaults, *, detail=False) -> list[str]:
             head += f"  [default for {e} in {m}]"
     lines = [head]
     lines.append(f"  {law.element} in {law.mineral} (measured on {law.phase or law.mineral}); status {law.status}")
+    lines.append(_verified_line(law.id))
     lines.append(f"  {law.formula}")
     lines.append(f"  calibrated: {_range_text(law)}")
     if law.needs:

@@ -24,7 +24,8 @@ supplies every term that is not the analytical noise of the fitted profile
 - **partition coefficients** (plagioclase trace elements): the fit is repeated
   with A ± its sd and the slope of log10 D·t on A carries a deviate shared per
   sample.
-- **An noise**: refits with the An points perturbed by their own scatter.
+- **An noise**: the An level either side of the boundary is uncertain by its
+  point scatter over the points averaged into it; two refits give the slopes.
 - **beam size** and **growth width of the initial step**: variances add for a
   step relaxed by linear diffusion and seen through a Gaussian spot (Crank 1975,
   erf of a Gaussian-blurred step), so the fitted apparent D·t is corrected draw
@@ -56,7 +57,7 @@ __all__ = [
     "DEFAULT_BEAM_SD_FRACTION",
     "DEFAULT_GROWTH_WIDTH_SD_UM",
     "DEFAULT_PARTITION_A_SD_FRACTION",
-    "AN_NOISE_REFITS",
+    "AN_LEVEL_POINTS",
     "cli_shared_seed",
     "law_spread",
 ]
@@ -74,8 +75,8 @@ DEFAULT_GROWTH_WIDTH_SD_UM = 0.5
 #: Stated default 1σ of the partition parameter A, as a fraction of |A|, where
 #: the partition model gives none (the project's stated default).
 DEFAULT_PARTITION_A_SD_FRACTION = 0.1
-#: Refits with perturbed An points behind the An-noise term.
-AN_NOISE_REFITS = 8
+#: An points averaged into each side's frozen An level (the running mean of the An model).
+AN_LEVEL_POINTS = 5
 
 
 def cli_shared_seed(seed: int) -> int:
@@ -216,25 +217,30 @@ def partition_term(ctx, a_sd_j_mol) -> tuple[float, float]:
     return (up - dn) / (2.0 * a_sd_j_mol), float(a_sd_j_mol)
 
 
-def an_noise_offsets(ctx, seed: int) -> np.ndarray:
-    """log10 D·t offsets of refits with the An points perturbed by their own scatter."""
+def an_noise_sd(ctx) -> float:
+    """sd of log10 D·t from the noise of the An levels either side of the boundary.
+
+    The An the model holds frozen is a running mean of 5 points on each side
+    (or the mean of a flat profile), so each side's level is uncertain by
+    σ_An/√5 (σ_An the point-to-point scatter of the An points). Two refits, with
+    the rimward and then the coreward An raised by that amount, give the two
+    sensitivities; the sides are independent, so their effects add in
+    quadrature. Deterministic: no draws.
+    """
     an = ctx.get("an_inputs")
     problem = ctx["problem"]
-    if not an or problem.coupling != "an":
-        return np.zeros(0)
+    if not an or problem.coupling != "an" or problem.x_an_cells is None:
+        return 0.0
     from zoneprofile.diffusion._steps import _noise_sd
 
-    an_x, an_vals, cells_for = an["x"], an["values"], an["cells_for"]
-    sd = _noise_sd(an_vals)
-    if not sd > 0:
-        return np.zeros(0)
-    rng = np.random.default_rng([int(seed) & (2**63 - 1), 0x414E])  # a stream of its own ("AN")
-    out = []
-    for _ in range(AN_NOISE_REFITS):
-        pert = np.clip(an_vals + rng.normal(0.0, sd, an_vals.size), 0.0, 100.0)
-        try:
-            cells = cells_for(pert)
-        except Exception:  # noqa: BLE001 - a perturbed An that cannot be read is skipped
-            continue
-        out.append(refit_log10_dt(ctx, _changed(problem, x_an_cells=cells)) - float(ctx["best"][0]))
-    return np.array(out)
+    se = _noise_sd(np.asarray(an["values"], float) / 100.0) / math.sqrt(AN_LEVEL_POINTS)
+    if not se > 0:
+        return 0.0
+    cells = np.asarray(problem.x_an_cells, float)
+    rimward = problem.grid.centres_um < float(ctx["best"][1])
+    best = float(ctx["best"][0])
+    shifts = []
+    for side in (rimward, ~rimward):
+        raised = np.clip(cells + se * side, 0.0, 1.0)
+        shifts.append(refit_log10_dt(ctx, _changed(problem, x_an_cells=raised)) - best)
+    return float(math.hypot(*shifts))

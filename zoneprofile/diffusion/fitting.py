@@ -401,9 +401,14 @@ def _fit_boundary(
         temperature_sd_c = DEFAULT_TEMPERATURE_SD_C
         defaults_used["temperature_sd_c"] = (f"{DEFAULT_TEMPERATURE_SD_C:g} °C (1σ; no temperature uncertainty "
                                              "was given)")
-    options = budget if isinstance(budget, BudgetOptions) else BudgetOptions(**(budget or {}))
+    try:
+        options = budget if isinstance(budget, BudgetOptions) else BudgetOptions(**(budget or {}))
+    except TypeError as exc:
+        raise InputError(f"unknown budget setting: {exc}") from None
     options = options.checked()
-    if options.fo2_buffer is not None and fo2_pa is None:
+    if options.fo2_buffer is not None and fo2_pa is not None:
+        raise InputError("give either fo2_pa or an fO2 buffer, not both")
+    if options.fo2_buffer is not None:
         from zoneprofile.diffusion.laws.buffers import fo2_buffer_pa
 
         fo2_pa = float(fo2_buffer_pa(options.fo2_buffer, t0, delta_log=options.fo2_delta_log))
@@ -727,10 +732,7 @@ def _fit_boundary(
         "floor_delta_chi2": floor_delta_chi2,
         "profile_upper_log10_dt": upper_log10_dt,
         "budget_options": options, "defaults_used": defaults_used,
-        "an_inputs": None if x_an_cells is None or an_vals is None else {
-            "x": an_x, "values": an_vals,
-            "cells_for": lambda v: _frozen_an(grid, an_x, v, an_beam_um, b0, window)[0](
-                b0 if an_info.get("tied_position_um") is not None or an_info.get("sharpened") else None)},
+        "an_inputs": None if x_an_cells is None or an_vals is None else {"values": an_vals},
     }
     result = propagate(context)
     result.warnings = warnings + result.warnings

@@ -207,12 +207,12 @@ def _noise_offsets(ctx, rng):
             return _projected_fit(model, y_stars, weights, best, lower, upper, vary)[0]
 
         thetas = round_of(n_refits)
-        while thetas.shape[0] < MAX_NOISE_REFITS:
+        # the first round counts as the doubling of its own first half
+        stable = n_refits >= 20 and _refits_stable(thetas[: n_refits // 2, 0], thetas[:, 0])
+        while not stable and thetas.shape[0] < MAX_NOISE_REFITS:
             more = np.vstack([thetas, round_of(min(thetas.shape[0], MAX_NOISE_REFITS - thetas.shape[0]))])
             stable = _refits_stable(thetas[:, 0], more[:, 0])
             thetas = more
-            if stable:
-                break
         return thetas, f"residual bootstrap, {thetas.shape[0]} refits (grown until stable)"
     y_stars = [pred + rng.choice(scaled, size=n, replace=True) / weights for _ in range(n_refits)]
     for y_star in y_stars:
@@ -238,6 +238,16 @@ def _refits_stable(before, after) -> bool:
     a = np.percentile(before, STABLE_PERCENTILES)
     b = np.percentile(after, STABLE_PERCENTILES)
     return bool(np.max(np.abs(a - b)) <= STABLE_TOLERANCE_LOG10)
+
+
+def _data_seed(ctx) -> int:
+    """Seed of the noise refits: a hash of the fitted points, their weights and the best fit."""
+    import hashlib
+
+    h = hashlib.sha256()
+    for a in (ctx["problem"].x_um, ctx["problem"].y, ctx["weights"], ctx["best"]):
+        h.update(np.ascontiguousarray(np.asarray(a, float)).tobytes())
+    return int.from_bytes(h.digest()[:8], "big")
 
 
 def _mixture_quantile(q, sd, shifts, weights):
@@ -312,7 +322,10 @@ def propagate(ctx) -> FitResult:
     law = problem.law
     warnings = []
 
-    thetas, noise_method = _noise_offsets(ctx, rng)
+    # the noise refits resample the profile with a generator keyed by the data, not by the seed: the
+    # analytical-noise part, and with it the verdict (resolved or an upper bound), is a function of
+    # the data alone, so no seed can flip it (docs/fitting-and-uncertainty.md)
+    thetas, noise_method = _noise_offsets(ctx, np.random.default_rng(_data_seed(ctx)))
     log_noise = thetas[:, 0]
     shape_fn, nodes = _temperature_shape(ctx)
 
@@ -369,13 +382,41 @@ def propagate(ctx) -> FitResult:
             a_sd = bud.DEFAULT_PARTITION_A_SD_FRACTION * abs(problem.partition_ab[0])
             defaults_used["partition_a_sd_j_mol"] = (
                 f"{a_sd:.3g} J/mol ({bud.DEFAULT_PARTITION_A_SD_FRACTION:.0%} of |A|; the model gives no sd)")
-        slope, a_sd = bud.partition_term(ctx, float(a_sd))
+        if shape_fn is not None and getattr(law, "temperature_separable", True):
+            # the shape depends on T only through A/RT (B/RT scales the values, which are fitted):
+            # A + δA at T is the shape at T' = T·A/(A + δA), so the slope comes free from the
+            # temperature refits: d log τ / dA = g'(0) · (−T_K / A)
+            a0 = float(problem.partition_ab[0])
+            slope = float(shape_fn.deriv()(0.0)) * (-(t0 + 273.15) / a0) if a0 else 0.0
+        else:
+            slope, a_sd = bud.partition_term(ctx, float(a_sd))
         log_partition = slope * a_sd * bud.shared_normals(shared_seed, n_draws, "partition A")
-    # An noise: refits with the An points perturbed by their own scatter
+    # An noise: the An levels either side of the boundary, from two refits (deterministic)
     log_an = np.zeros(n_draws)
-    an_offsets = bud.an_noise_offsets(ctx, ctx["seed"]) if options.an_noise else np.zeros(0)
-    if an_offsets.size > 2:
-        log_an = float(np.sqrt(np.mean(an_offsets**2))) * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+    if options.an_noise:
+        an_sd = bud.an_noise_sd(ctx)
+        if an_sd > 0:
+            log_an = an_sd * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+    # --- resolution (deterministic given the converged refits: a seed does not decide it)
+    dt_um2 = 10.0 ** (best[0] + 12.0)
+    res_var = ctx["resolution_var_um2"]
+    p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
+    floor_delta = ctx.get("floor_delta_chi2")
+    step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
+    # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
+    q_low = _mixture_quantile(0.025, sd_noise, shifts, wts)
+    dt_low_um2 = 10.0 ** (best[0] + q_low + 12.0)
+    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected
+                    and not at_ceiling)
+    if not resolved:
+        # the An-noise and partition sensitivities are refits about a best fit that the data do not
+        # separate from an undiffused step: not applied to an upper bound (shown in the budget only)
+        applied_an_partition = False
+        log_an_shown, log_partition_shown = log_an, log_partition
+        log_an, log_partition = np.zeros(n_draws), np.zeros(n_draws)
+    else:
+        applied_an_partition = True
+        log_an_shown, log_partition_shown = log_an, log_partition
     # m², D_ref(T_k)·t of the apparent profile; draws stay inside the range of D·t the fit searched
     log_tau = np.clip(best[0] + g + eps + log_partition + log_an, log_lo, log_hi)
 
@@ -455,13 +496,22 @@ def propagate(ctx) -> FitResult:
         time_days = tau_m2 / d_draw / SECONDS_PER_DAY
         best_days = tau_best / float(law.d_m2_s(t0, **comp)) / SECONDS_PER_DAY
     else:
+        def comp_at(temp):
+            if fo2_note is None:
+                return comp
+            from zoneprofile.diffusion.laws.buffers import fo2_buffer_pa
+
+            return {**comp, "fo2_pa": fo2_buffer_pa(options.fo2_buffer, temp, delta_log=options.fo2_delta_log)}
+
         def d_fn(temp, rows):
             pert = {k: v[rows] for k, v in perturb.items()} or None
-            return law.d_m2_s(np.maximum(temp, 1.0), perturb=pert, **comp)
+            temp = np.maximum(temp, 1.0)
+            return law.d_m2_s(temp, perturb=pert, **comp_at(temp))
 
         time_days, notes = durations_days(path, d_fn, tau_m2, shift_c=t_draw - t0)
         warnings += notes
-        bd, _ = durations_days(path, lambda temp, rows: law.d_m2_s(np.maximum(temp, 1.0), **comp),
+        bd, _ = durations_days(path, lambda temp, rows: law.d_m2_s(np.maximum(temp, 1.0),
+                                                                  **comp_at(np.maximum(temp, 1.0))),
                                np.array([tau_best]))
         best_days = float(bd[0])
         warnings.append("non-isothermal path: the profile shape was modelled at the path's starting "
@@ -477,17 +527,6 @@ def propagate(ctx) -> FitResult:
     if n_inf:
         warnings.append(f"{n_inf} of {n_draws} draws give no finite time")
 
-    # --- resolution (deterministic given the converged refits: a seed does not decide it)
-    dt_um2 = 10.0 ** (best[0] + 12.0)
-    res_var = ctx["resolution_var_um2"]
-    p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
-    floor_delta = ctx.get("floor_delta_chi2")
-    step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
-    # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
-    q_low = _mixture_quantile(0.025, sd_noise, shifts, wts)
-    dt_low_um2 = 10.0 ** (best[0] + q_low + 12.0)
-    resolved = bool(2.0 * dt_low_um2 > res_var and p_low > log_lo + 0.1 and not at_floor and step_rejected
-                    and not at_ceiling)
     if not step_rejected:
         warnings.append(
             f"an undiffused step seen through the spot fits the data about as well (Δχ² = {floor_delta:.2g} "
@@ -541,8 +580,8 @@ def propagate(ctx) -> FitResult:
     budget["law_parameters"] = sd_of(np.log10(law.d_m2_s(t0, perturb=perturb, **comp))) if perturb else 0.0
     spread = bud.law_spread(law, t0, comp) if options.law_spread else None
     budget["law_spread_systematic"] = 0.0 if spread is None else spread["sd_log10"]
-    budget["partition_coefficients"] = sd_of(log_partition)
-    budget["an_noise"] = sd_of(log_an)
+    budget["partition_coefficients"] = sd_of(log_partition_shown)
+    budget["an_noise"] = sd_of(log_an_shown)
     budget["beam_size"] = sd_of(np.log10(corrected(np.full(n_draws, best[0]), s2_drawn, 0.0, factor_best))
                                 - log_best)
     budget["growth_width"] = sd_of(np.log10(corrected(np.full(n_draws, best[0]), s2_assumed, sg2, factor_best))
@@ -573,7 +612,8 @@ def propagate(ctx) -> FitResult:
                    "shared_seed": shared_seed, "traverse_seed": traverse_seed,
                    "beam_sd_um": beam_sd, "growth_width_sd_um": growth_sd,
                    "partition_a_sd_j_mol": a_sd or None, "fo2_buffer": options.fo2_buffer,
-                   "fo2_delta_log": options.fo2_delta_log if options.fo2_buffer else None}
+                   "fo2_delta_log": options.fo2_delta_log if options.fo2_buffer else None,
+                   "an_noise_and_partition_in_draws": applied_an_partition}
 
     # --- curves for plotting
     x = problem.x_um

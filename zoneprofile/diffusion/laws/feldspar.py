@@ -13,7 +13,7 @@ __all__ = [
 ]
 
 
-def _anorthoclase(direction: str, d0: float, ea: float) -> ArrheniusLaw:
+def _anorthoclase(direction: str, d0: float, ea: float, ea_sd: float) -> ArrheniusLaw:
     form, params, needs = arrhenius_parameters(d0_m2_s=d0, ea_kj_mol=ea)
     return ArrheniusLaw(
         id=f"cherniak-watson1992-sr-anorthoclase-{direction}",
@@ -24,6 +24,7 @@ def _anorthoclase(direction: str, d0: float, ea: float) -> ArrheniusLaw:
         status="CONFIRMED",
         formula=f"D = {d0:.3g} · exp(−{ea:g} kJ/mol / RT)  [m²/s], ⊥({direction})",
         parameters=params,
+        parameter_sd={"ea_kj_mol": ea_sd},
         t_range_c=(725.0, 1075.0),
         needs=needs,
         anisotropy=(
@@ -37,8 +38,10 @@ def _anorthoclase(direction: str, d0: float, ea: float) -> ArrheniusLaw:
 
 
 # Cherniak & Watson (1992), Sr in anorthoclase. CONFIRMED.
-CHERNIAK_WATSON1992_SR_ANORTHOCLASE_001 = _anorthoclase("001", 2.25e-2, 373.6)
-CHERNIAK_WATSON1992_SR_ANORTHOCLASE_010 = _anorthoclase("010", 4.51e-3, 372.8)
+# The abstract gives ± 4600 cal/mol (⊥(001)) and ± 4800 cal/mol (⊥(010)) on the activation
+# energies: 19.2 and 20.1 kJ/mol, taken as 1σ (the abstract does not say which).
+CHERNIAK_WATSON1992_SR_ANORTHOCLASE_001 = _anorthoclase("001", 2.25e-2, 373.6, 19.2)
+CHERNIAK_WATSON1992_SR_ANORTHOCLASE_010 = _anorthoclase("010", 4.51e-3, 372.8, 20.1)
 
 # Cherniak (1996): Sr in alkali feldspar ⊥(001), D = 2.9e-9 · exp(−224 kJ/mol / RT),
 # 675–1025 °C. Numbers CONFIRMED; which feldspar (albite or sanidine) FROM MEMORY.

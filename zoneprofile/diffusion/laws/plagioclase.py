@@ -114,6 +114,8 @@ CHERNIAK_WATSON1992_SR_AN = ArrheniusLaw(
     status="CONFIRMED",
     formula="D = 3.85×10⁻⁶ · exp(−329.7 kJ/mol / RT)  [m²/s], ⊥(010)",
     parameters=_params,
+    # ± 5400 cal/mol in the abstract = 22.6 kJ/mol, taken as 1σ (the abstract does not say which)
+    parameter_sd={"ea_kj_mol": 22.6},
     t_range_c=(725.0, 1075.0),
     composition_range={"x_an": (0.9, 1.0)},
     needs=_needs,

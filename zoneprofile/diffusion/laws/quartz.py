@@ -21,6 +21,9 @@ CHERNIAK2007_TI = ArrheniusLaw(
     status="CONFIRMED",
     formula="D = 7×10⁻⁸ · exp(−273 kJ/mol / RT)  [m²/s]",
     parameters=_params,
+    # "273 ± 12 kJ mol⁻¹" in the abstract (docs/laws/ names the page); taken as 1σ (the abstract
+    # does not say which)
+    parameter_sd={"ea_kj_mol": 12.0},
     t_range_c=(700.0, 1150.0),
     needs=_needs,
     anisotropy="near-isotropic",

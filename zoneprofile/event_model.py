@@ -474,8 +474,8 @@ def _statement(td, resolved=True):
     st = td.get("statement")
     if st in ("date", "upper_bound", "lower_bound", "none"):
         return st
-    if not resolved:
-        return "upper_bound" if td.get("upper_bound") is not None else "none"
+    if not resolved:  # older records: an unresolved fit is an upper bound unless it says it has none
+        return "none" if ("upper_bound" in td and td["upper_bound"] is None) else "upper_bound"
     return "date" if td.get("median") is not None else "none"
 
 

@@ -132,7 +132,8 @@ def test_tables_neutralise_formula_cells(built):
     intervals = _rows(out / "tables/intervals.csv")
     assert len(intervals) == sum(len(r["recharge_intervals_days"]) for r in recs)
     events = _rows(out / "tables/events.csv")
-    assert [e["event"] for e in events] == ["Mg-E1", "Mg-E2"]  # oldest first
+    assert [e["event"] for e in events] == ["E1", "E2", "Mg-E1", "Mg-E2"]  # population, then per element; oldest first
+    assert [e["scope"] for e in events] == ["population"] * 2 + ["element"] * 2
 
 
 def test_svg_keeps_text_with_units(built):

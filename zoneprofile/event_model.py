@@ -178,7 +178,7 @@ def _starts(ydates, k, rng, previous=None):
     if previous is not None:
         d = np.min(np.abs(ys[:, None] - previous[None, :]), axis=1)
         out.append(np.sort(np.concatenate([previous, [ys[int(np.argmax(d))]]])))
-    if k > 1:
+    if k > 1 and previous is None:
         out.append(np.sort(rng.choice(ys, size=k, replace=False)))
     return out
 
@@ -200,7 +200,7 @@ def _minimise(theta0, k, floor, data, bounds):
         f, g = _negloglik(lo + width * sg, k, floor, data)
         return f, g * width * sg * (1.0 - sg)
 
-    res = optimize.minimize(fun, x0, jac=True, method="BFGS", options={"gtol": 1e-4, "maxiter": 1000})
+    res = optimize.minimize(fun, x0, jac=True, method="BFGS", options={"gtol": 1e-3, "maxiter": 1000})
     res.x = lo + width * special.expit(res.x)
     return res
 
@@ -392,8 +392,8 @@ def fit_event_model(observations, *, k_max: int = K_MAX, spread_floor: float = S
         fits[k] = (theta, bounds, bic, eligible)
         previous = theta[:k]
         best_k = min((kk for kk in fits if fits[kk][3]), key=lambda kk: fits[kk][2], default=None)
-        if best_k is not None and k >= best_k + 2:
-            break  # two more events did not lower the criterion: stop searching
+        if best_k is not None and k >= best_k + 1:
+            break  # one more event did not lower the criterion: stop searching
     good = [k for k in fits if fits[k][3]]
     k = min(good, key=lambda kk: fits[kk][2]) if good else 1
     theta, bounds, _, _ = fits[k]
@@ -511,14 +511,25 @@ def _one(td, resolved=True):
 def _combine(cands):
     """One observation for a boundary dated by several elements (single-boundary fits).
 
-    The date with the narrowest 95 % interval in log time carries the boundary;
-    with no date, the tightest upper and lower bounds are combined (an interval
-    when both exist and agree).
+    The date with the narrowest 95 % interval in log time carries the boundary
+    (ties: the element named first alphabetically); where two elements' dates
+    disagree beyond their combined 95 % intervals the observation carries a
+    note. With no date, the tightest upper and lower bounds are combined (an
+    interval when both exist and agree). Returns ``(observation, element, reason)``.
     """
-    dates = [c for c in cands if c[0]["statement"] == "date"]
+    dates = sorted((c for c in cands if c[0]["statement"] == "date"),
+                   key=lambda c: (round(c[0]["sigma_log10"], 9), c[1]))
     if dates:
-        best = min(dates, key=lambda c: c[0]["sigma_log10"])
-        return best[0], best[1], None
+        best = dict(dates[0][0])
+        notes = []
+        for o, el in dates[1:]:
+            d = abs(o["log10_days"] - best["log10_days"])
+            if d > _Z975 * math.hypot(o["sigma_log10"], best["sigma_log10"]):
+                notes.append(f"{dates[0][1]} and {el} dates disagree beyond their 95 % intervals "
+                             f"(factor {10 ** d:.2g}); the narrower ({dates[0][1]}) carries the boundary")
+        if notes:
+            best["notes"] = notes
+        return best, dates[0][1], None
     ups = [c for c in cands if c[0]["statement"] == "upper_bound"]
     lows = [c for c in cands if c[0]["statement"] == "lower_bound"]
     if ups and lows:
@@ -526,7 +537,7 @@ def _combine(cands):
         lw = max(lows, key=lambda c: c[0]["lower_log10"])
         if lw[0]["lower_log10"] < u[0]["upper_log10"]:
             o = {"statement": "interval", "upper_log10": u[0]["upper_log10"], "lower_log10": lw[0]["lower_log10"]}
-            return o, f"{lw[1]}>{u[1]}<", None
+            return o, f"{lw[1]} (lower), {u[1]} (upper)", None
         return None, None, "the elements' bounds contradict each other (lower bound above upper bound)"
     if ups:
         u = min(ups, key=lambda c: c[0]["upper_log10"])
@@ -667,7 +678,7 @@ def population_events(records, *, element=None, k_max: int = K_MAX, spread_floor
             "time_days": _obs_summary(o),
             "probabilities": {ids[m]: float(p) for m, p in enumerate(probs)},
             "event": ids[fit["assignment"][j]] if k else None,
-            "flags": fit["flags"][j],
+            "flags": list(o.get("notes") or []) + fit["flags"][j],
         })
     return {
         "criterion": "BIC",

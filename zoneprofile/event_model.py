@@ -682,7 +682,7 @@ def population_events(records, *, element=None, k_max: int = K_MAX, spread_floor
         })
     return {
         "criterion": "BIC",
-        "criterion_text": "Bayesian information criterion, -2 log L + (3K - 1) ln n, smallest wins",
+        "criterion_text": "Bayesian information criterion, -2 log L + (3K - 1) ln n",
         "bic_by_k": fit["bic_by_k"], "eligible_by_k": fit["eligible_by_k"], "k": k,
         "interval_method": ("Wald interval on the event's log10 age from the observed information, Student t on "
                             "(dated members - 1) degrees of freedom, shared temperature/law error added in quadrature"),

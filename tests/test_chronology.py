@@ -12,7 +12,6 @@ from zoneprofile.chronology import (
     crystal_intervals,
     dkw_halfwidth,
     ecdf_with_band,
-    group_events,
     kde_log10,
     population_summary,
 )
@@ -163,16 +162,6 @@ def test_kde_matches_scipy_gaussian_kde():
 
 
 # --------------------------------------------------------------------------- events
-def test_group_events_single_linkage():
-    # chaining: (0,1)-(0.8,2)-(1.9,3) link although the ends do not overlap
-    assert group_events([(0, 1), (0.8, 2), (1.9, 3), (4, 5)]) == [0, 0, 0, 1]
-    assert group_events([(4, 5), (0, 1)]) == [1, 0]
-    assert group_events([(0, 1), (1.2, 2)]) == [0, 1]
-    assert group_events([(0, 1), (1.2, 2)], gap=0.25) == [0, 0]
-    with pytest.raises(InputError):
-        group_events([(0, 1)], gap=-1)
-
-
 def _planted(seed=9):
     """Crystals recording events planted at 10, 100 and 1000 days (self-consistency data)."""
     rng = np.random.default_rng(seed)
@@ -203,24 +192,27 @@ def test_population_recovers_planted_events():
     pop = population_summary(recs, n_bootstrap=50)
     block = pop["elements"]["Mg"]
     events = block["events"]
-    assert [e["id"] for e in events] == ["Mg-1", "Mg-2", "Mg-3"]
-    for e, t in zip(events, [10.0, 100.0, 1000.0]):
+    # ids oldest first
+    assert [e["id"] for e in events] == ["Mg-E1", "Mg-E2", "Mg-E3"]
+    for e, t in zip(events, [1000.0, 100.0, 10.0]):
         assert e["median_days"] == pytest.approx(t, rel=0.15)
         assert e["p2_5_days"] < t < e["p97_5_days"]
     # membership and fractions: denominators are crystals analysed without error (6)
     members = [{(c["sample"], c["crystal"]) for c in e["crystals"]} for e in events]
-    assert members[0] == {("A", "a1"), ("A", "a2"), ("B", "b1")}
-    assert members[2] == {("A", "a2"), ("B", "b1"), ("B", "b2")}
+    assert members[2] == {("A", "a1"), ("A", "a2"), ("B", "b1")}
+    assert members[0] == {("A", "a2"), ("B", "b1"), ("B", "b2")}
     assert events[1]["fraction_of_crystals"] == pytest.approx(3 / 6)
-    assert events[2]["by_sample"]["B"] == {"n_crystals": 2, "n_analysed": 2, "fraction": 1.0}
-    assert events[2]["by_sample"]["A"]["fraction"] == pytest.approx(1 / 4)
+    assert events[0]["by_sample"]["B"] == {"n_crystals": 2, "n_analysed": 2, "fraction": 1.0}
+    assert events[0]["by_sample"]["A"]["fraction"] == pytest.approx(1 / 4)
     assert pop["n_crystals"] == 7 and pop["n_failed"] == 1
     assert block["campaign"]["n_boundaries"] == 9
     assert set(block["samples"]) == {"A", "B"}
     assert block["samples"]["A"]["n_boundaries"] == 5
-    # a wide gap merges everything into one event (single linkage)
-    merged = population_summary(recs, n_bootstrap=0, event_gap=2.0)
-    assert len(merged["elements"]["Mg"]["events"]) == 1
+    # the population block (every boundary, all elements) finds the same three events, oldest first
+    pe = pop["events"]
+    assert pe["criterion"] == "BIC" and [e["id"] for e in pe["events"]] == ["E1", "E2", "E3"]
+    assert min(pe["bic_by_k"], key=pe["bic_by_k"].get) == "3"
+    assert [e["n_crystals"] for e in pe["events"]] == [3, 3, 3]
 
 
 def test_population_kde_and_ecdf_blocks():
@@ -273,7 +265,7 @@ def test_population_without_draws_and_empty():
             b.pop("time_draws_days")
     pop = population_summary(recs, n_bootstrap=20)
     ev = pop["elements"]["Mg"]["events"]
-    assert len(ev) == 3 and ev[0]["basis"].startswith("member")
+    assert len(ev) == 3 and ev[0]["basis"].startswith("mixture")
     empty = population_summary([])
     assert empty["elements"] == {} and empty["boundaries"] == []
 
@@ -285,10 +277,11 @@ def test_event_intervals_group_crystal_intervals():
     pop = population_summary(recs, n_bootstrap=0)
     eiv = {(x["from_event"], x["to_event"]): x for x in pop["elements"]["Mg"]["event_intervals"]}
     # a1: 10->100, a2: 10->1000, b1: 10->100 and 100->1000 (layout of _planted)
-    assert set(eiv) == {("Mg-1", "Mg-2"), ("Mg-1", "Mg-3"), ("Mg-2", "Mg-3")}
-    assert eiv[("Mg-1", "Mg-2")]["n_crystals"] == 2
-    assert eiv[("Mg-1", "Mg-2")]["median_of_medians_days"] == pytest.approx(90.0, rel=0.2)
-    assert eiv[("Mg-2", "Mg-3")]["median_of_medians_days"] == pytest.approx(900.0, rel=0.2)
+    # (events oldest first: Mg-E3 is the 10-day event, Mg-E1 the 1000-day one)
+    assert set(eiv) == {("Mg-E3", "Mg-E2"), ("Mg-E3", "Mg-E1"), ("Mg-E2", "Mg-E1")}
+    assert eiv[("Mg-E3", "Mg-E2")]["n_crystals"] == 2
+    assert eiv[("Mg-E3", "Mg-E2")]["median_of_medians_days"] == pytest.approx(90.0, rel=0.2)
+    assert eiv[("Mg-E2", "Mg-E1")]["median_of_medians_days"] == pytest.approx(900.0, rel=0.2)
 
 
 def test_missing_numbers_from_json_nulls_do_not_crash():
@@ -310,7 +303,7 @@ def test_missing_numbers_from_json_nulls_do_not_crash():
 
 
 @pytest.mark.parametrize("kwargs, text", [({"n_bootstrap": -1}, "n_bootstrap"), ({"grid_points": 1}, "grid_points"),
-                                          ({"confidence": 1.0}, "confidence"), ({"event_gap": -0.1}, "event_gap")])
+                                          ({"confidence": 1.0}, "confidence")])
 def test_population_options_are_checked(kwargs, text):
     with pytest.raises(InputError, match=text):
         population_summary([], **kwargs)

@@ -132,7 +132,8 @@ def test_tables_neutralise_formula_cells(built):
     intervals = _rows(out / "tables/intervals.csv")
     assert len(intervals) == sum(len(r["recharge_intervals_days"]) for r in recs)
     events = _rows(out / "tables/events.csv")
-    assert [e["event"] for e in events] == ["Mg-1", "Mg-2"]
+    assert [e["event"] for e in events] == ["E1", "E2", "Mg-E1", "Mg-E2"]  # population, then per element; oldest first
+    assert [e["scope"] for e in events] == ["population"] * 2 + ["element"] * 2
 
 
 def test_svg_keeps_text_with_units(built):
@@ -278,7 +279,7 @@ def test_two_elements_get_their_own_chronology(tmp_path):
     names = sorted(p.name for p in (tmp_path / "figures").glob("*.png"))
     assert {"chronology-Mg.png", "chronology-Sr.png", "events-Mg.png", "events-Sr.png"} <= set(names)
     page = (tmp_path / "report.html").read_text()
-    assert "Sr-1" in page and "Mg-1" in page
+    assert "Sr-E1" in page and "Mg-E1" in page
 
 
 # --------------------------------------------------------------------------- crystal figure canvas
@@ -541,7 +542,7 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
     assert y_of["South / c2"] < y_of["South / c10"]  # natural order
     # one bar and two caps per dated boundary, in the colour of its event (and the legend's two caps)
     events = pop["elements"]["Mg"]["events"]
-    colours = {"Mg-1": "#0072B2", "Mg-2": "#D55E00"}
+    colours = {"Mg-E1": "#0072B2", "Mg-E2": "#D55E00"}  # events oldest first
     for e in events:
         counts = sorted(p.get("d").count("M") for p in root.iter(f"{ns}path")
                         if p.get("stroke") == colours[e["id"]] and "L" in p.get("d"))

@@ -8,8 +8,9 @@ Two levels:
   where it should instead of being counted twice.
 * :func:`population_summary` — over samples and the whole campaign, the times
   of every dated boundary, their empirical CDF with a Dvoretzky–Kiefer–Wolfowitz
-  band, a kernel density on log10(time) with a bootstrap band, and the grouping
-  of boundaries into recharge events.
+  band, a kernel density on log10(time) with a bootstrap band, and the recharge
+  events: a censored mixture model of boundary ages in log time
+  (:mod:`zoneprofile.event_model`), per dated element and for the population.
 
 Times are in days throughout (``*_days``); the density is per log10(day).
 The maths is in ``docs/chronology.md``.
@@ -23,6 +24,7 @@ from collections import defaultdict
 import numpy as np
 
 from zoneprofile._validation import InputError
+from zoneprofile.event_model import population_events
 
 __all__ = [
     "crystal_intervals",
@@ -30,7 +32,6 @@ __all__ = [
     "ecdf_with_band",
     "dkw_halfwidth",
     "kde_log10",
-    "group_events",
 ]
 
 _PCTS = (2.5, 16.0, 50.0, 84.0, 97.5)
@@ -272,35 +273,6 @@ def kde_log10(values, grid, *, bandwidth=None, fallback_bandwidth: float = 0.1) 
     return dens, float(h)
 
 
-# --------------------------------------------------------------------------- events
-def group_events(intervals, *, gap: float = 0.0) -> list[int]:
-    """Single-linkage grouping of 1-D intervals: connected overlapping intervals.
-
-    ``intervals`` is a sequence of ``(low, high)`` (here 95% intervals of
-    log10 time). Two intervals are linked when they overlap or are closer than
-    ``gap``; groups are the connected components of that graph (single
-    linkage). Returns one group label per interval, labels numbered from 0 in
-    order of increasing position.
-    """
-    iv = [(float(lo), float(hi)) for lo, hi in intervals]
-    if gap < 0:
-        message = f"event gap must be >= 0, got {gap}"
-        raise InputError(message)
-    order = sorted(range(len(iv)), key=lambda k: (iv[k][0], iv[k][1]))
-    labels = [-1] * len(iv)
-    group = -1
-    reach = -math.inf
-    for k in order:
-        lo, hi = iv[k]
-        if lo > reach + gap:
-            group += 1
-            reach = hi
-        else:
-            reach = max(reach, hi)
-        labels[k] = group
-    return labels
-
-
 # --------------------------------------------------------------------------- population
 def _boundary_rows(records):
     """Flatten records into dated-boundary rows; failed crystals are skipped."""
@@ -443,7 +415,6 @@ def _scope_summary(rows, unresolved, n_analysed, grid, rng, *, n_boot, bandwidth
 def population_summary(
     records,
     *,
-    event_gap: float = 0.0,
     confidence: float = 0.95,
     n_bootstrap: int = 200,
     bandwidth: float | None = None,
@@ -459,9 +430,6 @@ def population_summary(
         ``error``, ``boundaries[]`` with ``position_um``, ``element``,
         ``time_days {median, p2_5, p97_5, ...}``, ``resolved`` and optionally
         ``time_draws_days``.
-    event_gap : float, default 0
-        Extra distance in log10(days) under which two 95% intervals are still
-        linked into one event (0: they must overlap).
     confidence : float, default 0.95
         Level of the DKW band, the bootstrap band and the event intervals.
     n_bootstrap : int, default 200
@@ -481,7 +449,10 @@ def population_summary(
         resolved dated boundary with its median and 95% interval and event),
         ``unresolved`` (upper bounds, listed but left out of the ECDF and KDE),
         ``elements {element: {campaign: summary, samples: {sample: summary},
-        events: [...], event_intervals: [...]}}``. ``event_intervals`` groups
+        events: [...], event_model: {...}, event_intervals: [...]}}`` and
+        ``events``, the population's recharge events from every boundary
+        (crystal-model ages where a crystal has them, else its single fits;
+        :func:`zoneprofile.event_model.population_events`). ``event_intervals`` groups
         the crystals' recharge intervals (``recharge_intervals_days`` of the
         records) by the pair of events their outer and inner boundaries
         belong to.
@@ -490,8 +461,9 @@ def population_summary(
     -----
     Statistics are kept per dated element: Mg and Sr record the same boundary
     with different diffusivities and their times are not one population.
-    Events are the connected components of the graph linking boundaries whose
-    95% intervals of log10(time) overlap (single linkage). The fraction of
+    Events are the components of a censored mixture of boundary ages in
+    log10(time), their number chosen by BIC (:mod:`zoneprofile.event_model`);
+    upper and lower bounds enter as censored observations. The fraction of
     crystals recording an event counts crystals analysed without error.
     """
     if records is None:
@@ -505,9 +477,6 @@ def population_summary(
         raise InputError(message)
     if not 0 < confidence < 1:
         message = f"confidence must lie between 0 and 1, got {confidence}"
-        raise InputError(message)
-    if event_gap < 0:
-        message = f"event_gap must be >= 0 (log10 days), got {event_gap}"
         raise InputError(message)
     rng = np.random.default_rng(seed)
     rows, unresolved = _boundary_rows(records)
@@ -531,7 +500,8 @@ def population_summary(
             grid = np.linspace(lo - pad, hi + pad, grid_points)
         else:
             grid = np.linspace(0, 1, grid_points)
-        events = _events(erows, el, event_gap, analysed_by_sample, n_all, rng)
+        model = population_events(records, element=el, confidence=confidence, seed=seed)
+        events = _events(erows, eunres, el, model, analysed_by_sample, n_all)
         samples = {}
         for s in sorted(analysed_by_sample):
             srows = [r for r in erows if r["sample"] == s]
@@ -546,6 +516,7 @@ def population_summary(
                                        bandwidth=bandwidth, confidence=confidence),
             "samples": samples,
             "events": events,
+            "event_model": {k: v for k, v in model.items() if k not in ("events", "members")},
             "event_intervals": _event_intervals(records, erows, el),
         }
 
@@ -554,12 +525,11 @@ def population_summary(
         boundaries.append({k: v for k, v in r.items() if not k.startswith("_") and k != "index"})
     return {
         "settings": {
-            "event_gap_log10": float(event_gap),
             "confidence": float(confidence),
             "n_bootstrap": int(n_bootstrap),
             "bandwidth_log10": bandwidth,
             "seed": int(seed),
-            "event_rule": "single linkage of overlapping 95% intervals of log10(time)",
+            "event_rule": "censored mixture of boundary ages in log10(time), number of events by BIC",
             "fraction_denominator": "crystals analysed without error",
         },
         "n_crystals": len(records),
@@ -567,6 +537,7 @@ def population_summary(
         "boundaries": boundaries,
         "unresolved": [{k: v for k, v in u.items() if k != "index"} for u in unresolved],
         "elements": by_element,
+        "events": population_events(records, confidence=confidence, seed=seed),
     }
 
 
@@ -610,57 +581,48 @@ def _key(element) -> str:
     return "unknown" if element is None else str(element)
 
 
-def _events(rows, element, gap, analysed_by_sample, n_all, rng):
-    if not rows:
-        return []
-    iv = [(math.log10(r["p2_5_days"]), math.log10(r["p97_5_days"])) for r in rows]
-    labels = group_events(iv, gap=gap)
-    events = []
+def _events(rows, unresolved, element, model, analysed_by_sample, n_all):
+    """One element's events in the per-element layout, from its mixture model; tags rows with their event."""
     prefix = _key(element)
-    for g in range(max(labels) + 1):
-        members = [r for r, lab in zip(rows, labels) if lab == g]
-        pooled = []
-        for r in members:
-            d = r["_draws"]
-            if d.size:
-                pooled.append(d[rng.integers(0, d.size, size=1000)])
-        if pooled:
-            s = _summary(np.concatenate(pooled))
-            med, lo, hi = s["median"], s["p2_5"], s["p97_5"]
-            basis = "pooled draws (1000 per boundary)"
-        else:
-            meds = np.array([r["median_days"] for r in members])
-            med = float(np.median(meds))
-            lo = min(r["p2_5_days"] for r in members)
-            hi = max(r["p97_5_days"] for r in members)
-            basis = "member medians and 95% intervals"
-        crystals = sorted({(r["sample"], r["crystal"]) for r in members})
+    where = {}
+    for m in model["members"]:
+        where[(m["sample"], m["crystal"], m["position_um"])] = m
+    for r in list(rows) + list(unresolved):
+        x = r.get("position_um")
+        m = where.get((r["sample"], r["crystal"], float(x))) if isinstance(x, (int, float)) else None
+        r["event"] = f"{prefix}-{m['event']}" if m and m.get("event") else None
+        if m:
+            r["event_probabilities"] = {f"{prefix}-{k}": p for k, p in m["probabilities"].items()}
+            if m["flags"]:
+                r["event_flags"] = list(m["flags"])
+    events = []
+    for e in model["events"]:
+        eid = f"{prefix}-{e['id']}"
+        members = [r for r in rows if r.get("event") == eid]
+        crystals = sorted({(c["sample"], c["crystal"]) for c in e["crystals"]})
         per_sample = {}
         for s, names in sorted(analysed_by_sample.items()):
             n_rec = sum(1 for c in crystals if c[0] == s)
-            per_sample[s] = {
-                "n_crystals": n_rec,
-                "n_analysed": len(names),
-                "fraction": n_rec / len(names) if names else None,
-            }
-        eid = f"{prefix}-{g + 1}"
-        for r in members:
-            r["event"] = eid
-        events.append(
-            {
-                "id": eid,
-                "element": element,
-                "median_days": med,
-                "p2_5_days": lo,
-                "p97_5_days": hi,
-                "basis": basis,
-                "member_median_range_days": [min(r["median_days"] for r in members),
-                                             max(r["median_days"] for r in members)],
-                "n_boundaries": len(members),
-                "crystals": [{"sample": s, "crystal": c} for s, c in crystals],
-                "n_crystals": len(crystals),
-                "fraction_of_crystals": len(crystals) / n_all if n_all else None,
-                "by_sample": per_sample,
-            }
-        )
+            per_sample[s] = {"n_crystals": n_rec, "n_analysed": len(names),
+                             "fraction": n_rec / len(names) if names else None}
+        age = e["age_days"]
+        events.append({
+            "id": eid,
+            "element": element,
+            "median_days": age["median"],
+            "p2_5_days": age["p2_5"],
+            "p97_5_days": age["p97_5"],
+            "age_days": age,
+            "basis": "mixture model (Wald interval on the event's log10 age)",
+            "spread_log10": e["log10_days"]["spread"],
+            "member_median_range_days": ([min(r["median_days"] for r in members),
+                                          max(r["median_days"] for r in members)] if members else None),
+            "n_boundaries": e["n_boundaries"],
+            "n_bounds": e["n_bounds"],
+            "crystals": [{"sample": s, "crystal": c} for s, c in crystals],
+            "n_crystals": len(crystals),
+            "fraction_of_crystals": len(crystals) / n_all if n_all else None,
+            "by_sample": per_sample,
+            "warnings": e["warnings"],
+        })
     return events

@@ -136,15 +136,17 @@ def _summary_section(records, population) -> str:
     return "".join(parts)
 
 
-def _chronology_section(population, pop_figs) -> str:
+def _chronology_section(population, pop_figs, records=()) -> str:
     parts = []
     settings = population.get("settings") or {}
     parts.append(
         "<p>For each dated element: the empirical CDF of boundary times (medians) with its "
         "Dvoretzky–Kiefer–Wolfowitz band, a kernel density of log10(time) with a bootstrap band "
-        "(crystals and time draws resampled), and the grouping of boundaries into recharge events "
-        f"({_e(settings.get('event_rule', ''))}, extra gap {_num(settings.get('event_gap_log10'))} "
-        "in log10 days). Method: <code>docs/chronology.md</code>.</p>")
+        "(crystals and time draws resampled), and the recharge events "
+        f"({_e(settings.get('event_rule', ''))}). Method: <code>docs/chronology.md</code>.</p>")
+    from zoneprofile.report.ladders import ladders_html
+
+    parts.append(ladders_html(records, population))
     for el_key, block in (population.get("elements") or {}).items():
         parts.append(f"<h3>{_e(block.get('element') or el_key)}</h3>")
         figs = pop_figs.get(el_key) or {}
@@ -349,7 +351,7 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     out.append(f'<section id="caution"><h2>Caution</h2><div class="caution"><p>{_e(CAUTION)}</p></div></section>')
     out.append(f'<section id="summary"><h2>Summary</h2>{_summary_section(records, population)}</section>')
     out.append(f'<section id="chronology"><h2>Recharge chronology</h2>'
-               f"{_chronology_section(population, population_pngs)}</section>")
+               f"{_chronology_section(population, population_pngs, records)}</section>")
     iv_rows = _intervals_rows(records)
     out.append('<section id="intervals"><h2>Time between recharges</h2>'
                "<p>Inner minus outer boundary time per Monte Carlo draw (draws of one crystal share the "

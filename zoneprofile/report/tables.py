@@ -1,4 +1,4 @@
-"""Tables for a supplement: zones, fits, intervals, crystals, events (CSV).
+"""Tables for a supplement: zones, fits, intervals, crystals, events, event members, gaps (CSV).
 
 One tidy table per topic, one row per item, units in column names. Written
 with :func:`zoneprofile._output.write_table`, which neutralises text cells that
@@ -34,8 +34,9 @@ INTERVAL_COLUMNS = ["sample", "crystal", "element", "outer_um", "inner_um", "med
 CRYSTAL_COLUMNS = ["sample", "crystal", "mineral", "status", "error", "n_points", "n_steps",
                    "n_resorption_surfaces", "n_dated_boundaries", "n_resolved", "n_intervals", "n_warnings",
                    "inputs"]
-EVENT_COLUMNS = ["element", "event", "median_days", "p2_5_days", "p97_5_days", "n_boundaries", "n_crystals",
-                 "fraction_of_crystals", "crystals"]
+EVENT_COLUMNS = ["scope", "element", "event", "median_days", "p2_5_days", "p97_5_days", "spread_log10",
+                 "n_boundaries", "n_dated", "n_bounds", "n_crystals", "fraction_of_crystals", "by_sample", "crystals",
+                 "warnings"]
 
 
 def _join(items) -> str:
@@ -133,22 +134,29 @@ def crystals_table(records) -> pd.DataFrame:
 
 
 def events_table(population) -> pd.DataFrame:
-    """One row per recharge event of the population summary."""
-    rows = []
+    """One row per recharge event: the population's (scope ``population``), then each element's."""
+    from zoneprofile.report.ladders import population_event_rows
+
+    rows = population_event_rows(population)
     for block in (population or {}).get("elements", {}).values():
         for e in block.get("events") or []:
             rows.append({
-                "element": e.get("element"), "event": e.get("id"), "median_days": e.get("median_days"),
-                "p2_5_days": e.get("p2_5_days"), "p97_5_days": e.get("p97_5_days"),
-                "n_boundaries": e.get("n_boundaries"), "n_crystals": e.get("n_crystals"),
-                "fraction_of_crystals": e.get("fraction_of_crystals"),
+                "scope": "element", "element": e.get("element"), "event": e.get("id"),
+                "median_days": e.get("median_days"), "p2_5_days": e.get("p2_5_days"),
+                "p97_5_days": e.get("p97_5_days"), "spread_log10": e.get("spread_log10"),
+                "n_boundaries": e.get("n_boundaries"), "n_bounds": e.get("n_bounds"),
+                "n_crystals": e.get("n_crystals"), "fraction_of_crystals": e.get("fraction_of_crystals"),
+                "by_sample": _join(f"{s}:{v.get('n_crystals')}" for s, v in (e.get("by_sample") or {}).items()),
                 "crystals": _join(f"{c['sample']}/{c['crystal']}" for c in e.get("crystals") or []),
+                "warnings": _join(e.get("warnings")),
             })
     return _frame(rows, EVENT_COLUMNS)
 
 
 def write_tables(records, population, table_dir) -> list[Path]:
-    """Write zones.csv, fits.csv, intervals.csv, crystals.csv, events.csv into ``table_dir``."""
+    """Write zones, fits, intervals, crystals, events, event_members and gaps (CSV) into ``table_dir``."""
+    from zoneprofile.report.ladders import gaps_table, members_table
+
     d = Path(table_dir)
     d.mkdir(parents=True, exist_ok=True)
     return [
@@ -157,4 +165,6 @@ def write_tables(records, population, table_dir) -> list[Path]:
         write_table(d / "intervals.csv", intervals_table(records)),
         write_table(d / "crystals.csv", crystals_table(records)),
         write_table(d / "events.csv", events_table(population)),
+        write_table(d / "event_members.csv", members_table(population)),
+        write_table(d / "gaps.csv", gaps_table(records, population)),
     ]

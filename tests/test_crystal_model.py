@@ -318,3 +318,30 @@ def test_cli_crystal_element_without_law(crystal_csv, tmp_path, capsys):
     code, _, err = _run(capsys, "fit", crystal_csv, "--crystal", "--element", "Mg,Ba", "--mineral", "plagioclase",
                            "--temperature-c", "850", "--boundary-um", "60", "-o", out)
     assert code == 2 and len(err.strip().splitlines()) == 1 and not out.exists(), err
+
+
+def test_equilibrated_element_gives_lower_bound():
+    """An element in equilibrium everywhere (no melt contrast left) gives a lower bound, not 'no time'.
+
+    Data: the t → ∞ limit with an open rim, every zone in equilibrium with the last melt,
+    C = K(X_An)·C_melt (Bindeman et al. 1998 form, RT ln K = A·X_An + B), seen through a 4 µm
+    spot with 2 % noise. A contrast at a boundary 60 µm from the rim cannot be erased before
+    diffusion has reached the rim, x²/(4D) (Crank 1975, eq. 2.45: erfc(x/2√(Dt)) ≈ 0.16 at
+    x = 2√(Dt)), so the lower bound must exceed that.
+    """
+    t = 850.0
+    x = np.arange(1.0, 150.0, 2.0)
+    rng = np.random.default_rng(2)
+    xf = (np.arange(850) + 0.5) * 0.2
+    anf = np.where(xf < 60.0, 78.0, 60.0)
+    a_j, b_j = partition_parameters("Mg")
+    cf = 900.0 * np.exp((a_j * anf / 100.0 + b_j) / (R_J_MOL_K * (t + 273.15)))
+    y = _spots(xf, cf, x, 4.0) * (1 + 0.02 * rng.standard_normal(x.size))
+    an = _spots(xf, anf, x, 4.0) + rng.normal(0, 0.5, x.size)
+    res = fit_crystal({"Mg": {"distance_um": x, "value": y, "beam_um": 4.0}}, mineral="plagioclase",
+                      positions_um=[61.0], temperature_c=t, an_distance_um=x, an=an, an_beam_um=4.0, seed=2,
+                      obliquity=None, draws=300)
+    s = res.to_record()["boundaries"][0]["by_element"]["Mg"]
+    assert s["statement"] == "lower_bound"
+    d_um2_day = float(default_law("Mg", "plagioclase").d_m2_s(t, x_an=0.69)) * 1e12 * DAY
+    assert s["lower_bound"] > 60.0 ** 2 / (4.0 * d_um2_day)

@@ -345,3 +345,27 @@ def test_equilibrated_element_gives_lower_bound():
     assert s["statement"] == "lower_bound"
     d_um2_day = float(default_law("Mg", "plagioclase").d_m2_s(t, x_an=0.69)) * 1e12 * DAY
     assert s["lower_bound"] > 60.0 ** 2 / (4.0 * d_um2_day)
+
+
+def test_concordance_of_two_clocks():
+    """Paired draws: ages agreeing within their combined scatter are concordant; a 3× offset with
+    0.1 (natural-log) sd each is 3.1 combined sd away (ln 3 / √0.02) and is flagged, with reasons."""
+    from zoneprofile.diffusion.crystal import _concordance, time_summary
+
+    rng = np.random.default_rng(0)
+    z = rng.standard_normal((2, 4000))
+    a = 100.0 * np.exp(0.1 * z[0])
+    b_same = 100.0 * np.exp(0.1 * z[1])
+    b_far = 300.0 * np.exp(0.1 * z[1])
+    assert _concordance({"Mg": (time_summary(a), a), "Sr": (time_summary(b_same), b_same)})["status"] == "concordant"
+    out = _concordance({"Mg": (time_summary(a), a), "Sr": (time_summary(b_far), b_far)})
+    assert out["status"] == "discordant"
+    text = " ".join(out["reasons"])
+    for word in ("temperature", "non-instant growth", "law", "partitioning"):
+        assert word in text
+    # a date wholly above the other element's upper bound disagrees; below it, it agrees
+    ub = time_summary(statement="upper_bound", upper=50.0)
+    assert _concordance({"Mg": (time_summary(a), a), "Sr": (ub, None)})["status"] == "discordant"
+    ub = time_summary(statement="upper_bound", upper=500.0)
+    assert _concordance({"Mg": (time_summary(a), a), "Sr": (ub, None)})["status"] == "concordant"
+    assert _concordance({"Mg": (time_summary(a), a)})["status"] == "one element"

@@ -318,3 +318,54 @@ def test_cli_crystal_element_without_law(crystal_csv, tmp_path, capsys):
     code, _, err = _run(capsys, "fit", crystal_csv, "--crystal", "--element", "Mg,Ba", "--mineral", "plagioclase",
                            "--temperature-c", "850", "--boundary-um", "60", "-o", out)
     assert code == 2 and len(err.strip().splitlines()) == 1 and not out.exists(), err
+
+
+def test_equilibrated_element_gives_lower_bound():
+    """An element in equilibrium everywhere (no melt contrast left) gives a lower bound, not 'no time'.
+
+    Data: the t → ∞ limit with an open rim, every zone in equilibrium with the last melt,
+    C = K(X_An)·C_melt (Bindeman et al. 1998 form, RT ln K = A·X_An + B), seen through a 4 µm
+    spot with 2 % noise. A contrast at a boundary 60 µm from the rim cannot be erased before
+    diffusion has reached the rim, x²/(4D) (Crank 1975, eq. 2.45: erfc(x/2√(Dt)) ≈ 0.16 at
+    x = 2√(Dt)), so the lower bound must exceed that.
+    """
+    t = 850.0
+    x = np.arange(1.0, 150.0, 2.0)
+    rng = np.random.default_rng(2)
+    xf = (np.arange(850) + 0.5) * 0.2
+    anf = np.where(xf < 60.0, 78.0, 60.0)
+    a_j, b_j = partition_parameters("Mg")
+    cf = 900.0 * np.exp((a_j * anf / 100.0 + b_j) / (R_J_MOL_K * (t + 273.15)))
+    y = _spots(xf, cf, x, 4.0) * (1 + 0.02 * rng.standard_normal(x.size))
+    an = _spots(xf, anf, x, 4.0) + rng.normal(0, 0.5, x.size)
+    res = fit_crystal({"Mg": {"distance_um": x, "value": y, "beam_um": 4.0}}, mineral="plagioclase",
+                      positions_um=[61.0], temperature_c=t, an_distance_um=x, an=an, an_beam_um=4.0, seed=2,
+                      obliquity=None, draws=300)
+    s = res.to_record()["boundaries"][0]["by_element"]["Mg"]
+    assert s["statement"] == "lower_bound"
+    d_um2_day = float(default_law("Mg", "plagioclase").d_m2_s(t, x_an=0.69)) * 1e12 * DAY
+    assert s["lower_bound"] > 60.0 ** 2 / (4.0 * d_um2_day)
+
+
+def test_concordance_of_two_clocks():
+    """Paired draws: ages agreeing within their combined scatter are concordant; a 3× offset with
+    0.1 (natural-log) sd each is 3.1 combined sd away (ln 3 / √0.02) and is flagged, with reasons."""
+    from zoneprofile.diffusion.crystal import _concordance, time_summary
+
+    rng = np.random.default_rng(0)
+    z = rng.standard_normal((2, 4000))
+    a = 100.0 * np.exp(0.1 * z[0])
+    b_same = 100.0 * np.exp(0.1 * z[1])
+    b_far = 300.0 * np.exp(0.1 * z[1])
+    assert _concordance({"Mg": (time_summary(a), a), "Sr": (time_summary(b_same), b_same)})["status"] == "concordant"
+    out = _concordance({"Mg": (time_summary(a), a), "Sr": (time_summary(b_far), b_far)})
+    assert out["status"] == "discordant"
+    text = " ".join(out["reasons"])
+    for word in ("temperature", "non-instant growth", "law", "partitioning"):
+        assert word in text
+    # a date wholly above the other element's upper bound disagrees; below it, it agrees
+    ub = time_summary(statement="upper_bound", upper=50.0)
+    assert _concordance({"Mg": (time_summary(a), a), "Sr": (ub, None)})["status"] == "discordant"
+    ub = time_summary(statement="upper_bound", upper=500.0)
+    assert _concordance({"Mg": (time_summary(a), a), "Sr": (ub, None)})["status"] == "concordant"
+    assert _concordance({"Mg": (time_summary(a), a)})["status"] == "one element"

@@ -195,13 +195,36 @@ class _Objective:
             v, _ = nnls(a, b)
         return v, a @ v - b
 
+    #: (boundary index, least relative melt contrast) imposed on every element, or None
+    forced = None
+
+    @classmethod
+    def solve_forced(cls, pred, y, weights, k, contrast):
+        """Residuals with the melts of zones ``k`` and ``k + 1`` at least ``contrast`` apart (relative).
+
+        The contrast is imposed exactly (``v_{k+1} = ρ·v_k``, ρ = 1 ± contrast, the better of
+        the two): a boundary whose element has reached equilibrium then shows the time a
+        contrast of that size needs to disappear.
+        """
+        best = None
+        for rho in (1.0 + contrast, 1.0 / (1.0 + contrast)):
+            merged = np.delete(pred, k + 1, axis=0)
+            merged[k] = pred[k] + rho * pred[k + 1]
+            _, r = cls.solve_values(merged, y, weights)
+            if best is None or r @ r < best @ best:
+                best = r
+        return best
+
     def residuals(self, x):
         self.n_eval += 1
         _Objective.element_evaluations += len(self.elements)
         states, x_an, faces = self.state(x)
         parts = []
         for em, (pred, _c, _b, _f) in zip(self.elements, states):
-            _, r = self.solve_values(pred, em.y, em.weights)
+            if self.forced is None:
+                _, r = self.solve_values(pred, em.y, em.weights)
+            else:
+                r = self.solve_forced(pred, em.y, em.weights, *self.forced)
             parts.append(r)
         if self.an_data is not None and x_an is not None:
             ax, av, aw, abeam, ashape = self.an_data
@@ -322,12 +345,15 @@ def _secant_crossing(dchi2, x0, v1, limit, iters=3):
     return v
 
 
-def _statements(obj, x, chi2, s2, res_var_um2, d_max, sd_c=None):
+def _statements(obj, x, chi2, s2, res_var_um2, d_max, sd_c=None, min_contrast=0.1):
     """Per time parameter: 'date', 'upper_bound', 'lower_bound' or 'none', and the crossing values.
 
     The conditional Δχ² (melt values refitted, the other parameters held) at
     the collapsed end (gap → lower limit) and at the equilibrated end (upper
-    limit) of each log time; Δχ² < 3.84 at an end leaves that side open.
+    limit) of each log time; Δχ² < 3.84 at an end leaves that side open. Where
+    both are open because the element shows no contrast at all, the check is
+    repeated with a melt contrast of at least ``min_contrast`` imposed (a lower
+    bound when such a contrast would show at young ages).
     """
     lo, hi = obj.bounds()
     out = []
@@ -345,7 +371,21 @@ def _statements(obj, x, chi2, s2, res_var_um2, d_max, sd_c=None):
         info = {"open_low": bool(open_low), "open_high": bool(open_high), "upper_x": None, "lower_x": None}
         if open_low and not open_high:
             info["upper_x"] = _crossing(lambda v: dchi2(v), x[j], hi[j], DELTA_CHI2_95, iters=7)
-        if open_high and not open_low:
+        if open_high and open_low and min_contrast:
+            # no contrast seen at this boundary: a zone grown from another melt would have had one.
+            # With a contrast of at least min_contrast imposed, a young age shows a step the data do
+            # not have; the age above which it would have been erased is a lower bound
+            k = obj.n - 1 if j == 0 else j - 1
+            obj.forced = (k, float(min_contrast))
+            try:
+                if dchi2(low_end) >= DELTA_CHI2_95 and dchi2(hi[j]) < DELTA_CHI2_95:
+                    open_low = False
+                    info["open_low"] = False
+                    info["forced_contrast"] = float(min_contrast)
+                    info["lower_x"] = _crossing(lambda v: -dchi2(v), low_end, hi[j], -DELTA_CHI2_95, iters=8)
+            finally:
+                obj.forced = None
+        elif open_high and not open_low:
             # lower bound: the smallest value still within Δχ² < 3.84, coming from below
             info["lower_x"] = _crossing(lambda v: -dchi2(v), low_end, x[j], -DELTA_CHI2_95, iters=7)
         if not open_low and not open_high:
@@ -362,7 +402,7 @@ def _statements(obj, x, chi2, s2, res_var_um2, d_max, sd_c=None):
 def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_sd_c=0.0, an_distance_um=None,
                 an=None, an_beam_um=None, an_beam_shape="gaussian", rim="open", laws=None,
                 partition="bindeman1998", draws=1000, seed=0, temperature_seed=None, obliquity="section",
-                position_window_um=None, cell_um=None, fo2_pa=None, pressure_mpa=None):
+                position_window_um=None, cell_um=None, fo2_pa=None, pressure_mpa=None, min_melt_contrast=0.1):
     """Fit the whole-crystal model to one traverse and date every event.
 
     Parameters
@@ -391,6 +431,11 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
     position_window_um : float, optional
         How far each boundary may move (default: the larger of the spot sd and
         half the point spacing, at most 40 % of the nearest neighbour's distance).
+    min_melt_contrast : float
+        Least relative change of an element's melt concentration at a recharge,
+        used only where an element shows no contrast at a boundary (equilibrium):
+        the lower bound is the time a contrast this large needs to disappear
+        (default 0.1; a project default, not a published value).
 
     Returns
     -------
@@ -674,7 +719,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         cov, _, jac = _laplace(obj, x, r, known)
         # conditional sd of each time (the others held): the first secant step of the LR checks
         sd_c = np.sqrt(s2 / np.maximum(np.sum(jac * jac, axis=0), 1e-300))
-        sts = _statements(obj, x, chi2, s2, res_var, d_max, sd_c=sd_c)
+        sts = _statements(obj, x, chi2, s2, res_var, d_max, sd_c=sd_c, min_contrast=min_melt_contrast)
         young, gaps, cov = fit_draws(obj, x, cov, sts)
         ages, g_scaled = ages_from(young, gaps, f_event * obl_factor[:, None])
         # event k's own time parameter: young for the last event, gap k for the others

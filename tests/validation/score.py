@@ -4,7 +4,8 @@
 
 Prints the four figures of issue 10's "Done when" (thresholds in brackets):
 
-1. recharge boundaries dated by some element with the truth inside the 95 % interval [≥ 90 %];
+1. recharge boundaries dated by some element with the truth inside the 95 % interval [≥ 90 %]
+   (a date of one element, or the joint age of the whole-crystal model, fitted to all of them);
 2. statements (dates and bounds) consistent with the truth [≥ 90 %]: a date when the
    truth is inside its 95 % interval, an ``upper_bound`` when truth < bound, a
    ``lower_bound`` when truth > bound;
@@ -176,7 +177,9 @@ def score(results: dict, truth: dict) -> dict:
                 matched.setdefault(tbound["id"], []).append((by_el, joint))
         for b in tb:
             found = matched.get(b["id"], [])
-            dates = [st for by_el, _ in found for st in by_el.values() if st["kind"] == "date"]
+            # dates stated for this boundary: each element's own, and the joint age of the whole-crystal model
+            dates = [st for by_el, joint in found for st in [*by_el.values(), joint]
+                     if st is not None and st["kind"] == "date"]
             ev = by_event.setdefault(b["event"], {"boundaries": 0, "found": 0, "dated": 0, "dated_true": 0})
             ev["boundaries"] += 1
             ev["found"] += bool(found)

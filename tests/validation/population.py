@@ -237,12 +237,12 @@ def _campaign_text(entries, samples, *, seed, draws, model) -> str:
         "comment = \"Invented data made by an independent seeded forward model.\"",
         f"seed = {seed}",
         f"draws = {draws}",
+        "",
+        "[defaults]",
     ]
     if model is not None:
         lines.append(f"model = {q(model)}")
     lines += [
-        "",
-        "[defaults]",
         "mineral = \"plagioclase\"",
         "elements = [\"Mg\", \"Sr\"]",
         f"beam_um = {EPMA_BEAM_UM:g}",
@@ -272,7 +272,7 @@ def main(argv=None) -> int:
     parser.add_argument("--draws", type=int, default=1000)
     parser.add_argument("--crystals", type=int, default=18)
     parser.add_argument("--model", choices=("boundary", "crystal"), default=None,
-                        help="campaign key 'model' (omitted: the runner's default)")
+                        help="the campaign setting 'model', written into [defaults] (omitted: the runner's default)")
     parser.add_argument("--force", action="store_true", help="write into a folder that is not empty")
     args = parser.parse_args(argv)
     out = Path(args.out)

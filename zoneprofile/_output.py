@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import shutil
 import tempfile
 from pathlib import Path
@@ -147,17 +148,35 @@ def write_json(path, obj) -> Path:
 
 
 _FORMULA_START = ("=", "+", "@", "\t", "\r")
+#: Control characters (C0, DEL, C1) and the Unicode line and paragraph separators:
+#: a CR or LF inside a cell starts a new row for many readers, and a cell after
+#: it could start with '='.
+_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
+_NAMED_ESCAPES = {"\n": "\\n", "\r": "\\r", "\t": "\\t"}
 
 
-def neutralise_cell(value):
+def escape_control(value: str) -> str:
+    """Write every control character of ``value`` as a visible escape (``\\r``, ``\\n``, ``\\x07``)."""
+    if not _CONTROL.search(value):
+        return value
+    return _CONTROL.sub(lambda m: _NAMED_ESCAPES.get(m.group(), f"\\u{ord(m.group()):04x}"), value)
+
+
+def neutralise_cell(value, *, escape: bool = True):
     """Make a text cell safe to open in a spreadsheet.
 
-    Text starting with ``=``, ``+``, ``@`` (or ``-`` when it is not a number) is
-    prefixed with a single quote so spreadsheet programs do not run it as a
-    formula. Numbers are returned unchanged.
+    Control characters (a CR or LF that would start a new row, a tab, a NUL)
+    are written as visible escapes (``\\r``, ``\\n``, ``\\u0007``), so a cell
+    stays one cell on one line; then text starting with ``=``, ``+``, ``@``
+    (or ``-`` when it is not a number) is prefixed with a single
+    quote so spreadsheet programs do not run it as a formula. Numbers are
+    returned unchanged. ``escape=False`` keeps control characters (JSON output,
+    which escapes them itself).
     """
     if not isinstance(value, str) or not value:
         return value
+    if escape:
+        value = escape_control(value)
     if value.startswith(_FORMULA_START):
         return "'" + value
     if value.startswith("-"):
@@ -176,11 +195,13 @@ def write_table(path, frame, *, index: bool = False) -> Path:
     import pandas as pd
 
     p = Path(path)
+    ext = p.suffix.lower()
+    escape = ext != ".json"
     safe = frame.copy()
     for col in safe.columns:
         if safe[col].dtype == object or pd.api.types.is_string_dtype(safe[col]):
-            safe[col] = safe[col].map(neutralise_cell)
-    ext = p.suffix.lower()
+            safe[col] = safe[col].map(lambda v: neutralise_cell(v, escape=escape))
+    safe.columns = [neutralise_cell(str(c), escape=escape) for c in safe.columns]
     if ext in (".csv", ".txt", ""):
         data = safe.to_csv(index=index, lineterminator="\n").encode("utf-8")
     elif ext == ".tsv":

@@ -19,6 +19,7 @@ import sys
 import traceback
 
 from zoneprofile import __version__
+from zoneprofile._limits import apply_limits
 from zoneprofile._validation import InputError
 
 __all__ = ["main", "COMMANDS"]
@@ -64,6 +65,7 @@ def build_parser() -> argparse.ArgumentParser:
             formatter_class=argparse.RawDescriptionHelpFormatter,
         )
         module.configure(p)
+        apply_limits(name, p)  # shared ranges of numeric options (zoneprofile/_limits.py)
         p.set_defaults(_run=module.run)
     return parser
 

@@ -85,7 +85,7 @@ def _split(lines: list[str], delimiter: str | None) -> list[list[str]]:
 def _refuse_long_cell(path: Path, row: int, length: int | None = None) -> None:
     size = f"of {length:,} characters" if length else "longer than the limit"
     message = (
-        f"a cell {size} (more than {MAX_CELL_CHARS:,}): not a value, label or comment of a table "
+        f"a cell {size} (more than {MAX_CELL_CHARS:,} characters): not a value, label or comment of a table "
         "(a damaged file, or a stray quote?)"
     )
     raise InputError(message, path=path, row=row)

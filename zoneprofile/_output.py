@@ -49,8 +49,26 @@ def check_outputs(*paths, force: bool = False) -> list[Path]:
         if not parent.exists():
             message = "the folder for this output does not exist; create it first"
             raise InputError(message, path=p)
+        _probe_writable(parent)
         out.append(p)
     return out
+
+
+def _probe_writable(folder: Path) -> None:
+    """Create and remove a small file in ``folder``, so a read-only folder or file
+    system (or a full disk) is found before any work is done, not after."""
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=".zoneprofile-probe.", dir=folder)
+    except OSError as exc:
+        import errno
+
+        reason = {errno.EROFS: "read-only file system", errno.ENOSPC: "no space left on the device",
+                  errno.EACCES: "permission denied", errno.EPERM: "permission denied",
+                  errno.EDQUOT: "disk quota exceeded"}.get(exc.errno, exc.strerror or "permission denied")
+        message = f"cannot write in this folder ({reason}); choose another output folder or fix its permissions"
+        raise InputError(message, path=folder) from None
+    os.close(fd)
+    os.unlink(tmp)
 
 
 def write_bytes(path, data: bytes) -> Path:
@@ -63,9 +81,11 @@ def write_bytes(path, data: bytes) -> Path:
             fh.write(data)
         os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
         os.replace(tmp, p)
-    except BaseException:
+    except BaseException as exc:
         if os.path.exists(tmp):
             os.unlink(tmp)
+        if isinstance(exc, OSError) and exc.filename is None:  # a failed write (full disk): name the output
+            raise OSError(exc.errno, exc.strerror, str(p)) from exc
         raise
     return p
 

@@ -33,6 +33,7 @@ FIT = ["fit", "p.csv", "--element", "Sr", "--mineral", "plagioclase", "--tempera
     ("--temperature-sd-c", "nan", "finite number"),
     ("--temperature-sd-c", "1_0", "finite number"),
     ("--draws", "3", "valid: from 50 to 100000"),
+    ("--radius-um", "1e300", "valid: above 0 to 100000 µm"),
 ])
 def test_fit_options_out_of_range(capsys, option, value, expect):
     err = _cli_error(capsys, [*FIT, option, value])

@@ -53,13 +53,14 @@ LIMITS: dict[str, Limit] = {
     "spot_um": Limit(float, 0, 200, "µm", low_open=True, why="spot diameter"),
     "noise_sd": Limit(float, 1e-6, 1e6, why="1-sigma analytical noise, in the column's units"),
     "width_px": Limit(int, 1, 501, "px", why="pixels averaged across a map profile"),
+    "radius_um": Limit(float, 0, 1e5, "µm", low_open=True, why="crystal radius (cylinder or sphere); 10 cm at most"),
     # a profile's distances: no crystal traverse is longer than 10 cm
     "distance_um": Limit(float, -1e5, 1e5, "µm", why="distance along a crystal traverse"),
 }
 
 #: Options of each command checked against :data:`LIMITS` (argparse ``dest``).
 CLI_OPTIONS: dict[str, tuple[str, ...]] = {
-    "fit": ("seed", "draws", "temperature_sd_c", "beam_um", "an_beam_um"),
+    "fit": ("seed", "draws", "temperature_sd_c", "beam_um", "an_beam_um", "radius_um"),
     "zones": ("noise_sd",),
     "map": ("width_px", "spot_um"),
     "recalc": ("beam_um",),

@@ -14,7 +14,10 @@ from zoneprofile.cli import main
 def test_refused_with_one_line_and_nothing_written(tmp_path, capsys, name):
     argv, expected = CASES[name](tmp_path)
     capsys.readouterr()
-    code = main(argv)
+    try:
+        code = main(argv)
+    except SystemExit as exc:  # an argparse usage error (an option out of its range)
+        code = exc.code
     captured = capsys.readouterr()
     err = captured.err
     assert code == 2, err
@@ -23,3 +26,24 @@ def test_refused_with_one_line_and_nothing_written(tmp_path, capsys, name):
     assert expected in err, err
     out = tmp_path / "out"
     assert not out.exists() or not any(out.iterdir()), sorted(p.name for p in out.iterdir())
+
+
+def test_library_chatter_stays_off_stderr(tmp_path, capsys, monkeypatch):
+    """tifffile log lines and numpy RuntimeWarnings used to come before the one-line refusal."""
+    import logging
+
+    import numpy as np
+
+    from zoneprofile._validation import InputError
+    from zoneprofile.cli import zones
+
+    def chatty(args):
+        logging.getLogger("tifffile").warning("TiffTag 33550: invalid value")
+        np.log(np.zeros(1))  # RuntimeWarning: divide by zero
+        raise InputError("refused", path=tmp_path / "x.csv")
+
+    monkeypatch.setattr(zones, "run", chatty)
+    capsys.readouterr()
+    assert main(["zones", str(tmp_path / "x.csv"), "-o", str(tmp_path / "z.json")]) == 2
+    err = capsys.readouterr().err
+    assert err == f"zoneprofile zones: {tmp_path / 'x.csv'}: refused\n"

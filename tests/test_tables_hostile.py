@@ -96,3 +96,14 @@ def test_underscores_are_not_digit_separators(tmp_path, cell):
     text = f"distance_um,Sr_ppm\n0,900\n2,{cell}\n4,600\n"
     with pytest.raises(InputError, match="row 3.*not a number"):
         read_profile(profile_table(tmp_path, text=text), columns=("Sr_ppm",))
+
+
+@pytest.mark.parametrize("char", ["\x0b", "\x0c", "\x1c", "\x1e", "\x85", "\u2028"])
+def test_unicode_line_separators_inside_a_cell_do_not_split_the_row(tmp_path, char):
+    """str.splitlines broke a row at these characters: the second half became a row of shifted cells."""
+    rows = plag_rows()
+    rows[2] = rows[2].replace("plag c2", f"plag{char}c2")
+    tr = read_traverse(plag_table(tmp_path, rows=rows))
+    clean = read_traverse(plag_table(tmp_path, "clean.csv"))
+    assert len(tr.table) == 12
+    np.testing.assert_array_equal(tr.table["An"], clean.table["An"])

@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import shutil
 import tempfile
 from pathlib import Path
@@ -48,8 +49,26 @@ def check_outputs(*paths, force: bool = False) -> list[Path]:
         if not parent.exists():
             message = "the folder for this output does not exist; create it first"
             raise InputError(message, path=p)
+        _probe_writable(parent)
         out.append(p)
     return out
+
+
+def _probe_writable(folder: Path) -> None:
+    """Create and remove a small file in ``folder``, so a read-only folder or file
+    system (or a full disk) is found before any work is done, not after."""
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=".zoneprofile-probe.", dir=folder)
+    except OSError as exc:
+        import errno
+
+        reason = {errno.EROFS: "read-only file system", errno.ENOSPC: "no space left on the device",
+                  errno.EACCES: "permission denied", errno.EPERM: "permission denied",
+                  errno.EDQUOT: "disk quota exceeded"}.get(exc.errno, exc.strerror or "permission denied")
+        message = f"cannot write in this folder ({reason}); choose another output folder or fix its permissions"
+        raise InputError(message, path=folder) from None
+    os.close(fd)
+    os.unlink(tmp)
 
 
 def write_bytes(path, data: bytes) -> Path:
@@ -62,9 +81,11 @@ def write_bytes(path, data: bytes) -> Path:
             fh.write(data)
         os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
         os.replace(tmp, p)
-    except BaseException:
+    except BaseException as exc:
         if os.path.exists(tmp):
             os.unlink(tmp)
+        if isinstance(exc, OSError) and exc.filename is None:  # a failed write (full disk): name the output
+            raise OSError(exc.errno, exc.strerror, str(p)) from exc
         raise
     return p
 
@@ -147,17 +168,35 @@ def write_json(path, obj) -> Path:
 
 
 _FORMULA_START = ("=", "+", "@", "\t", "\r")
+#: Control characters (C0, DEL, C1) and the Unicode line and paragraph separators:
+#: a CR or LF inside a cell starts a new row for many readers, and a cell after
+#: it could start with '='.
+_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
+_NAMED_ESCAPES = {"\n": "\\n", "\r": "\\r", "\t": "\\t"}
 
 
-def neutralise_cell(value):
+def escape_control(value: str) -> str:
+    """Write every control character of ``value`` as a visible escape (``\\r``, ``\\n``, ``\\x07``)."""
+    if not _CONTROL.search(value):
+        return value
+    return _CONTROL.sub(lambda m: _NAMED_ESCAPES.get(m.group(), f"\\u{ord(m.group()):04x}"), value)
+
+
+def neutralise_cell(value, *, escape: bool = True):
     """Make a text cell safe to open in a spreadsheet.
 
-    Text starting with ``=``, ``+``, ``@`` (or ``-`` when it is not a number) is
-    prefixed with a single quote so spreadsheet programs do not run it as a
-    formula. Numbers are returned unchanged.
+    Control characters (a CR or LF that would start a new row, a tab, a NUL)
+    are written as visible escapes (``\\r``, ``\\n``, ``\\u0007``), so a cell
+    stays one cell on one line; then text starting with ``=``, ``+``, ``@``
+    (or ``-`` when it is not a number) is prefixed with a single
+    quote so spreadsheet programs do not run it as a formula. Numbers are
+    returned unchanged. ``escape=False`` keeps control characters (JSON output,
+    which escapes them itself).
     """
     if not isinstance(value, str) or not value:
         return value
+    if escape:
+        value = escape_control(value)
     if value.startswith(_FORMULA_START):
         return "'" + value
     if value.startswith("-"):
@@ -176,11 +215,13 @@ def write_table(path, frame, *, index: bool = False) -> Path:
     import pandas as pd
 
     p = Path(path)
+    ext = p.suffix.lower()
+    escape = ext != ".json"
     safe = frame.copy()
     for col in safe.columns:
         if safe[col].dtype == object or pd.api.types.is_string_dtype(safe[col]):
-            safe[col] = safe[col].map(neutralise_cell)
-    ext = p.suffix.lower()
+            safe[col] = safe[col].map(lambda v: neutralise_cell(v, escape=escape))
+    safe.columns = [neutralise_cell(str(c), escape=escape) for c in safe.columns]
     if ext in (".csv", ".txt", ""):
         data = safe.to_csv(index=index, lineterminator="\n").encode("utf-8")
     elif ext == ".tsv":

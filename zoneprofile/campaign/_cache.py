@@ -55,6 +55,32 @@ def task_key(task: dict, version: str) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
+#: Fields every crystal record holds, with their types; and fields that, when
+#: present, must have their type (None allowed where listed).
+_REQUIRED = {
+    "sample": (str,), "crystal": (str,), "mineral": (str,), "error": (str, type(None)),
+    "inputs": (list,), "parameters": (dict,), "boundaries": (list,), "warnings": (list,),
+}
+_OPTIONAL = {
+    "profile": (dict, type(None)), "zones": (dict, type(None)), "recharge_intervals_days": (list,),
+    "timing_s": (dict,), "map": (dict, type(None)),
+}
+
+
+def valid_record(record) -> bool:
+    """Whether ``record`` has the layout of a crystal record (a damaged or emptied
+    cache file must be recomputed, never reported as a crystal without a name)."""
+    if not isinstance(record, dict):
+        return False
+    for name, kinds in _REQUIRED.items():
+        if name not in record or not isinstance(record[name], kinds):
+            return False
+    for name, kinds in _OPTIONAL.items():
+        if name in record and not isinstance(record[name], kinds):
+            return False
+    return all(record[k].strip() for k in ("sample", "crystal", "mineral"))
+
+
 class ResultCache:
     """A folder of crystal records, one JSON file per key."""
 
@@ -71,7 +97,7 @@ class ResultCache:
             data = json.loads(p.read_text(encoding="utf-8"))
         except (OSError, ValueError):
             return None
-        if not isinstance(data, dict) or data.get("key") != key or not isinstance(data.get("record"), dict):
+        if not isinstance(data, dict) or data.get("key") != key or not valid_record(data.get("record")):
             return None
         return data["record"]
 

@@ -28,6 +28,7 @@ campaign file, the line and the key.
 from __future__ import annotations
 
 import difflib
+import errno
 import hashlib
 import math
 import tomllib
@@ -244,11 +245,40 @@ def _number(ctx, value, where, *, low=None, high=None, unit="", integer=False):
     if not math.isfinite(float(value)):
         raise ctx.fail(where, f"expected a finite number, found {value!r}")
     u = f" {unit}" if unit else ""
+    valid = f" (valid: {low:g} to {high:g}{u})" if low is not None and high is not None else ""
     if low is not None and value < low:
-        raise ctx.fail(where, f"must be at least {low:g}{u}, found {value:g}{u}")
+        raise ctx.fail(where, f"must be at least {low:g}{u}{valid}, found {value:g}{u}")
     if high is not None and value > high:
-        raise ctx.fail(where, f"must be at most {high:g}{u}, found {value:g}{u}")
+        raise ctx.fail(where, f"must be at most {high:g}{u}{valid}, found {value:g}{u}")
     return int(value) if integer else float(value)
+
+
+#: Deepest nesting of tables and lists accepted in a campaign file (it needs 4).
+MAX_TOML_DEPTH = 16
+
+
+def _depth(doc) -> int:
+    """Nesting depth of tables and lists, walked without recursion."""
+    deepest, stack = 0, [(doc, 1)]
+    while stack:
+        node, level = stack.pop()
+        deepest = max(deepest, level)
+        if level > MAX_TOML_DEPTH:
+            break
+        children = node.values() if isinstance(node, dict) else node
+        stack.extend((c, level + 1) for c in children if isinstance(c, (dict, list)))
+    return deepest
+
+
+def _limited(ctx, value, where, key):
+    """A number checked against the range shared with the command line (zoneprofile/_limits.py)."""
+    from zoneprofile._limits import LIMITS
+
+    lim = LIMITS[key]
+    x = _number(ctx, value, where, low=lim.low, high=lim.high, unit=lim.unit, integer=lim.kind is int)
+    if lim.low_open and x == lim.low:
+        raise ctx.fail(where, f"must be above {lim.low:g} {lim.unit} (valid: {lim.describe()}); {lim.why}")
+    return x
 
 
 def _text(ctx, value, where, *, choices=None):
@@ -326,10 +356,8 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = names
         elif key == "temperature_c":
             out[key] = _number(ctx, value, w, low=400, high=1500, unit="°C")
-        elif key == "temperature_sd_c":
-            out[key] = _number(ctx, value, w, low=0, high=300, unit="°C")
-        elif key in ("beam_um", "trace_beam_um"):
-            out[key] = _number(ctx, value, w, low=0, high=200, unit="µm")
+        elif key in ("temperature_sd_c", "beam_um", "trace_beam_um"):
+            out[key] = _limited(ctx, value, w, key)
         elif key in ("beam_shape", "trace_beam_shape"):
             out[key] = _text(ctx, value, w, choices=("gaussian", "square"))
         elif key == "rim":
@@ -360,9 +388,9 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
                 chosen[element] = law_id
             out[key] = chosen
         elif key == "noise_sd":
-            out[key] = _number(ctx, value, w, low=0, high=1e6)
-            if out[key] == 0:
+            if _is_number(value) and value == 0:
                 raise ctx.fail(w, "must be > 0; leave it out to estimate the noise from the profile")
+            out[key] = _limited(ctx, value, w, key)
         elif key == "include_flagged":
             out[key] = _boolean(ctx, value, w)
         elif key == "obliquity_deg":
@@ -403,10 +431,14 @@ def _resolve_input(ctx, folder: Path, value, where, *, allow_outside: bool) -> t
     text = _text(ctx, value, where)
     if not text.strip():
         raise ctx.fail(where, "empty path")
-    from zoneprofile._paths import check_regular_file, resolve_path
+    from zoneprofile._paths import resolve_path
 
-    if "\0" in text:
-        raise ctx.fail(where, "the path contains a NUL character")
+    if "\x00" in text:
+        raise ctx.fail(where, "the path holds a NUL character; no file can be named so")
+    shown_text = text if len(text) <= 60 else text[:57] + "..."
+    if len(text) > 4096 or any(len(part.encode("utf-8")) > 255 for part in Path(text).parts):
+        raise ctx.fail(where, f"path '{shown_text}' is too long (a name above 255 bytes or a path above 4096 "
+                              "characters)")
     try:
         p = Path(text).expanduser()
         full = resolve_path(p if p.is_absolute() else folder / p)
@@ -476,22 +508,26 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
         raise InputError("campaign file is not UTF-8 text", path=p) from None
+    text = text.removeprefix("\ufeff")  # a byte-order mark, as some editors save UTF-8
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         message = " ".join(str(exc).split())
         raise InputError(f"not a valid TOML file: {message}", path=shown(p)) from None
     except RecursionError:  # arrays or inline tables nested thousands deep
-        raise InputError("not a valid campaign file: values nested too deeply (a campaign file needs at most "
-                         "three levels)", path=shown(p)) from None
+        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
+        raise InputError(message, path=shown(p)) from None
+    if _depth(doc) > MAX_TOML_DEPTH:
+        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
+        raise InputError(message, path=shown(p))
     ctx = _Context(p, text)
     folder = p.resolve().parent
 
     _check_keys(ctx, doc, (), _TOP_KEYS)
     title = _text(ctx, doc.get("title", ""), ("title",))
     comment = _text(ctx, doc.get("comment", ""), ("comment",))
-    seed = _number(ctx, doc.get("seed", 0), ("seed",), low=0, high=2**63 - 1, integer=True)
-    draws = _number(ctx, doc.get("draws", 1000), ("draws",), low=50, high=100000, integer=True)
+    seed = _limited(ctx, doc.get("seed", 0), ("seed",), "seed")
+    draws = _limited(ctx, doc.get("draws", 1000), ("draws",), "draws")
     outside = _boolean(ctx, doc.get("allow_outside_paths", False), ("allow_outside_paths",)) or allow_outside
     cache_value = doc.get("cache", ".zoneprofile-cache")
     if cache_value is False or cache_value == "":

@@ -9,6 +9,7 @@ and refuses what cannot be read with the file, row, column and text named.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -27,6 +28,9 @@ _SUMMARY_LABELS = {
     "average", "mean", "avg", "avg.", "stdev", "std dev", "std. dev.", "st.dev.", "sd", "s.d.", "minimum",
     "maximum", "min", "max", "median", "std", "1 sigma", "2 sigma", "sum", "total", "count", "n",
 }
+#: A plain non-negative decimal number (the fast path of cell parsing; anything
+#: else goes through :func:`parse_cell`, which gives the same value for these).
+_PLAIN_NUMBER = re.compile(r"\d+(\.\d*)?\Z").match
 MAX_OXIDE_WT = 100.0
 MAX_PPM = 1.0e6
 MAX_COORD = 1.0e7
@@ -226,6 +230,9 @@ def read_analyses(path, *, sheet=None) -> Analyses:
         lim = np.full(len(cells), np.nan)
         tx = np.empty(len(cells), dtype=object)
         for k, text in enumerate(cells):
+            if type(text) is str and _PLAIN_NUMBER(text):  # the bulk of a table: a plain non-negative number
+                values[k], st[k], tx[k] = float(text), "number", text
+                continue
             cell = parse_cell(text)
             tx[k] = cell.text
             if cell.state == "bad":
@@ -310,6 +317,7 @@ def _skip_non_analyses(frame, header, names, notes) -> tuple[np.ndarray, dict[in
     position_idx = [by_name[n] for n in ("x", "y", "distance") if n in by_name]
     oxide_idx = [j for j, n in names.items() if n in OXIDES]
     line_no = frame["_row"].to_numpy()
+    header_names = {str(h).strip() for h in header}  # a repeated header repeats these names
     summary = np.zeros(len(frame), dtype=bool)
     word = np.zeros(len(frame), dtype=object)
     for k in range(len(frame)):
@@ -324,7 +332,7 @@ def _skip_non_analyses(frame, header, names, notes) -> tuple[np.ndarray, dict[in
             reasons[int(line_no[k])] = "without oxide values"
             notes.append(f"row {int(line_no[k])} skipped: no oxide values")
             continue
-        if header_score(row) >= 2:
+        if sum(1 for c in row if c in header_names) >= 2 and header_score(row) >= 2:
             keep[k] = False  # the header repeated (page break in an export)
             reasons[int(line_no[k])] = "repeated header"
             notes.append(f"row {int(line_no[k])} skipped: the header repeated")

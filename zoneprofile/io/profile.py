@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from zoneprofile._limits import LIMITS
 from zoneprofile._validation import InputError, require_file
 from zoneprofile.io.cells import parse_number
 
@@ -181,6 +182,14 @@ def read_profile(
     ]
     out["qc"] = frame[names["qc"]].astype(str).to_numpy() if "qc" in names else "ok"
     d = out["distance_um"].to_numpy()
+    far = np.flatnonzero(np.abs(d) > LIMITS["distance_um"].high)
+    if far.size:
+        k = int(far[0])
+        message = (
+            f"distance {d[k]:g} µm is beyond {LIMITS['distance_um'].high:g} µm (10 cm), longer than any crystal "
+            "traverse; check the units of the column (µm expected)"
+        )
+        raise InputError(message, path=p, row=int(out["_row"][k]), column="distance_um")
     if len(d) and d[0] < 0:
         message = (
             f"distance_um is measured from the rim (0) toward the core, but the first point is at {d[0]:g} µm; "

@@ -22,6 +22,7 @@ __all__ = ["RawTable", "read_raw_table", "read_sheet_as_text", "frame_below_head
 
 _ENCODINGS = ("utf-8-sig", "cp1252", "latin-1")
 _DELIMITERS = ("\t", ";", ",")
+_LINE_BREAK = re.compile(r"\r\n|\r|\n")
 _DECIMAL_COMMA = re.compile(r"^[<>]?\s*[-+]?\d+,\d+([eE][-+]?\d+)?$")
 
 
@@ -85,7 +86,7 @@ def _split(lines: list[str], delimiter: str | None) -> list[list[str]]:
 def _refuse_long_cell(path: Path, row: int, length: int | None = None) -> None:
     size = f"of {length:,} characters" if length else "longer than the limit"
     message = (
-        f"a cell {size} (more than {MAX_CELL_CHARS:,}): not a value, label or comment of a table "
+        f"a cell {size} (more than {MAX_CELL_CHARS:,} characters): not a value, label or comment of a table "
         "(a damaged file, or a stray quote?)"
     )
     raise InputError(message, path=path, row=row)
@@ -135,7 +136,11 @@ def _split_records(lines: list[str], delimiter: str | None, path: Path) -> tuple
 
 def _text_rows(path: Path, is_header: Callable[[list[str]], int] | None) -> RawTable:
     text = _decode(path)
-    lines = text.splitlines()
+    # only CR, LF and CRLF end a line (as for the csv module and text editors); str.splitlines
+    # would also break at form feeds, \x1c-\x1e and U+2028 inside a cell and shift its row
+    lines = _LINE_BREAK.split(text)
+    if lines and lines[-1] == "":
+        lines.pop()
     if not any(ln.strip() for ln in lines):
         raise InputError("file holds no text", path=path)
     candidates = list(_DELIMITERS) + [None]

@@ -44,6 +44,11 @@ class RunSummary:
     def n_crystals(self) -> int:
         return len(self.records)
 
+    @property
+    def all_failed(self) -> bool:
+        """Every crystal failed (nothing was read to the end): the run is not a success."""
+        return self.n_crystals > 0 and len(self.failed) == self.n_crystals
+
     def line(self) -> str:
         """One-line summary for the terminal."""
         text = (f"{self.n_crystals} crystals: {len(self.computed)} computed, {len(self.from_cache)} from cache, "
@@ -313,6 +318,8 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
     records = [to_jsonable(r) for r in records]
     summary.records = records
     summary.population = population_summary(records)
+    if tasks and all(not t["parameters"].get("elements") for t in tasks):
+        summary.notes.append("zoning only (elements = []): profiles read and zoned, nothing dated")
     summary.provenance = _provenance(campaign, tasks, records, summary, workers=workers, scheduler=scheduler)
     if campaign_path_shown is not None:
         summary.provenance["campaign_file"]["path"] = campaign_path_shown
@@ -338,7 +345,7 @@ def write_campaign_outputs(summary: RunSummary, folder, *, formats=None) -> None
     given = {}
     fig_dir = folder / "figures"
     for i, (record, figures) in enumerate(zip(records, summary.figures or [None] * len(records))):
-        if record.get("error") or not figures or not all(f in figures for f in fmts):
+        if not figures or not all(f in figures for f in fmts):
             continue
         name = crystal_figure_name(record, i)
         fig_dir.mkdir(parents=True, exist_ok=True)

@@ -300,8 +300,9 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             out[key] = _text(ctx, value, w)
         elif key == "elements":
             items = [value] if isinstance(value, str) else value
-            if not isinstance(items, list) or not items:
-                raise ctx.fail(w, f"expected a list of element names such as [\"Mg\", \"Sr\"], found {value!r}")
+            if not isinstance(items, list):  # [] is a zoning-only campaign: read and zone, date nothing
+                raise ctx.fail(w, f"expected a list of element names such as [\"Mg\", \"Sr\"] (or [] to date "
+                                  f"nothing), found {value!r}")
             names = []
             for item in items:
                 names.append(_text(ctx, item, w))

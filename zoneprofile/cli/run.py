@@ -17,6 +17,10 @@ Each crystal's result is kept in a cache folder beside the campaign file
 only the crystals whose input files or settings changed, and a run that was
 interrupted goes on where it stopped.
 
+Exit code 0 when the report was written (failed crystals are counted in the
+summary line and listed); 2 for a bad campaign or command line, and when
+every crystal failed (the report with the reasons is still written).
+
 Diffusion timescales inform, and do not replace, hazard assessment, which
 belongs to the responsible observatory and local authorities.
 
@@ -76,4 +80,8 @@ def run(args):
                            progress=not args.quiet, cache=not args.no_cache, formats=formats)
     if not args.quiet:
         report_summary(summary)
+    if summary.all_failed:  # a report of failures only is not a success, even with --quiet
+        sys.stderr.write(f"zoneprofile run: every crystal failed ({len(summary.failed)} of {summary.n_crystals}); "
+                         f"nothing was dated; the reasons are in {summary.out_dir / 'report.html'}\n")
+        return 2
     return 0

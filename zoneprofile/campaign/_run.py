@@ -263,13 +263,21 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
 
     ship = bool(scheduler) and scheduler != "local-cluster"
     fmts = _figure_formats(formats)
+    n = len(campaign.crystals)
+    # a line at once, before hashing inputs and reading the cache (seconds for 10,000 crystals)
+    bar = Progress(n, enabled=progress, workers=1 if scheduler else workers)
+    bar.phase(f"checking the input files of {n} crystals")
     tasks = build_tasks(campaign, ship_bytes=ship, formats=fmts)
     store = ResultCache(campaign.cache_dir) if (cache and campaign.cache_dir is not None) else None
     records: list = [None] * len(tasks)
     summary = RunSummary(out_dir=Path("."), records=records, formats=fmts)
     summary.figures = [None] * len(tasks)
     pending = []
+    shown = time.monotonic()
     for i, task in enumerate(tasks):
+        if store is not None and time.monotonic() - shown > 0.25:
+            shown = time.monotonic()
+            bar.phase(f"looking up crystals in the cache: {i}/{n}, {len(summary.from_cache)} found")
         hit = store.get(task["key"]) if store is not None else None
         figures = store.get_figures(task["key"], fmts) if hit is not None else None
         # a mapped crystal cached without the figure formats asked for is drawn again with its map
@@ -281,7 +289,6 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
         else:
             pending.append(i)
 
-    bar = Progress(len(tasks), enabled=progress)
     cache_broken: list = []
     done = [len(tasks) - len(pending)]
     bar.update(done[0], cached=len(summary.from_cache), force=True)

@@ -75,7 +75,16 @@ def run(args):
     if args.workers < 1:
         raise InputError(f"--workers must be at least 1, got {args.workers}")
     formats = _formats(args.figures)
-    campaign = load_campaign(args.campaign, allow_outside=args.allow_outside)
+    from zoneprofile._paths import shown
+    from zoneprofile.campaign._executors import Progress
+
+    line = Progress(0, enabled=not args.quiet)
+    line.phase(f"reading the campaign file {shown(args.campaign)}")  # a line at once, however large the campaign
+    try:
+        campaign = load_campaign(args.campaign, allow_outside=args.allow_outside)
+    except BaseException:
+        line.close()
+        raise
     summary = run_campaign(campaign, args.out, workers=args.workers, scheduler=args.scheduler, force=args.force,
                            progress=not args.quiet, cache=not args.no_cache, formats=formats)
     if not args.quiet:

@@ -47,7 +47,8 @@ def main(argv):
     from zoneprofile.campaign import run_campaign
 
     try:
-        summary = run_campaign(path, out, workers=workers, force="--force" in argv, progress=False,
+        summary = run_campaign(path, out, workers=workers, force="--force" in argv,
+                               progress=bool(os.environ.get("FAULT_PROGRESS")),
                                process=process)
     except InputError as exc:
         sys.stderr.write(f"refused: {exc}\n")

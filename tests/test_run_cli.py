@@ -80,7 +80,8 @@ def test_outside_path_accepted_with_flag_then_fails_only_on_content(capsys, tmp_
     code, _, err = run_main(capsys, inner / "c.toml", "--out", tmp_path / "o1")
     assert code == 2 and "--allow-outside" in err
     code, _, err = run_main(capsys, inner / "c.toml", "--out", tmp_path / "o2", "--allow-outside", "--quiet")
-    assert code == 0, err
+    # the only crystal failed: exit 2 with one summary line (report still written)
+    assert code == 2 and "every crystal failed (1 of 1)" in err and err.count("\n") == 1, err
     res = json.loads((tmp_path / "o2" / "results.json").read_text())
     assert res["crystals"][0]["error"].startswith("reading traverse:")
 

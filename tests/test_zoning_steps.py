@@ -218,32 +218,100 @@ def test_batched_jump_tests_match_window_by_window_least_squares(monkeypatch):
     assert fallbacks  # the windows holding a point on a blocked edge went point by point
 
 
-def test_erf_fit_is_scipy_least_squares_with_its_own_differences():
-    # reference: scipy.optimize.least_squares (trust-region reflective, built-in '2-point'
-    # Jacobian); our fit computes the same differences in one pass and calls the same
-    # solver without its wrappers, so the optimum must agree bit for bit
-    from scipy.optimize import least_squares
-
-    from zoneprofile.zoning.steps import _erf_jacobian, _erf_model, _trust_region_fit
-
-    for seed, (pos, change, width) in enumerate([(40.0, -8.0, 0.0), (41.3, 6.0, 3.0), (39.0, -4.0, 1.0)]):
+def _erf_cases():
+    for seed, (pos, change, width) in enumerate([(40.0, -8.0, 0.0), (41.3, 6.0, 3.0), (39.0, -4.0, 1.0)] * 3):
         x, y, _ = synthetic_zoned_profile(seed=seed, length_um=80, spacing_um=(1.0, 2.5), noise_sd=0.5,
                                           steps=[(pos, change, width)], trend_per_um=0.02)
-        t, yy = x[(x > pos - 15) & (x < pos + 15)], y[(x > pos - 15) & (x < pos + 15)]
+        sel = (x > pos - 15) & (x < pos + 15)
         k = int(np.searchsorted(x, pos))
         lower = np.array([-np.inf, -np.inf, -np.inf, x[k - 2], np.log(0.02)])
         upper = np.array([np.inf, np.inf, np.inf, x[k + 1], np.log(3.0)])
         scale = [60.0, 0.1, abs(change), 1.5, 1.0]
         for s0 in (0.3, 1.5):
-            p0 = [60.0, 0.0, change, 0.5 * (x[k - 1] + x[k]), np.log(s0)]
+            yield x[sel], y[sel], [60.0, 0.0, change, 0.5 * (x[k - 1] + x[k]), np.log(s0)], lower, upper, scale
 
-            def residuals(p):
-                return _erf_model(p, t) - yy
 
-            ours = _trust_region_fit(residuals, _erf_jacobian(t, yy, lower, upper), p0, lower, upper, scale)
-            ref = least_squares(residuals, p0, bounds=(lower, upper), x_scale=scale)
-            assert np.array_equal(ours.x, ref.x) and ours.cost == ref.cost
-            assert np.array_equal(ours.jac, ref.jac)
+def test_erf_jacobian_is_the_derivative():
+    # independent route: central differences D(h), h = eps^(1/3) max(1, |p|). Their truncation error
+    # h^2 f^(3) / 6 is estimated from D(2h) - D(h) = 3 h^2 f^(3) / 6 (Richardson), their rounding
+    # error is below 4 eps |f| / h; the analytic column must agree within twice their sum
+    from zoneprofile.zoning.steps import _erf_model, _erf_problem
+
+    eps = np.finfo(float).eps
+
+    def central(p, i, h, t):
+        up, down = p.copy(), p.copy()
+        up[i] += h
+        down[i] -= h
+        return (_erf_model(up, t) - _erf_model(down, t)) / (up[i] - down[i])
+
+    for t, yy, p0, lower, upper, _ in _erf_cases():
+        _, jacobian = _erf_problem(t, yy, lower, upper)
+        for p in (np.array(p0, dtype=float), np.array(p0, dtype=float) + [1.0, 0.01, 0.5, 0.3, 0.2]):
+            ours = jacobian(p)
+            size = np.abs(_erf_model(p, t)) + np.abs(yy)
+            for i in range(5):
+                h = eps ** (1 / 3) * max(1.0, abs(p[i]))
+                d1, d2 = central(p, i, h, t), central(p, i, 2 * h, t)
+                bound = np.abs(d2 - d1) / 3 + 4 * eps * size / h
+                assert np.all(np.abs(ours[:, i] - d1) <= 2 * bound + 1e-300), i
+
+
+def test_erf_fit_agrees_with_least_squares_and_its_own_differences():
+    """The fit (public least_squares, analytic Jacobian) against least_squares with its '2-point' differences.
+
+    Tolerance from the solver's stopping rule: with ``ftol = 1e-8`` each run stops when the last
+    step lowered the cost C by less than ftol C, and near the optimum (Gauss-Newton, superlinear) the
+    remaining excess is below that last reduction, so each cost lies within ftol C* of the minimum C*:
+    |C1 - C2| <= ftol C*. In the linearised problem the fitted curves then differ by
+    ||J dp|| <= sqrt(2 ftol C*) + sqrt(2 ftol C*) = sqrt(8 ftol C*), and in units of the parameters'
+    standard errors (covariance s^2 (J'J)^-1, s^2 = 2 C* / (n - 5)) by
+    |dp_i| / sd_i <= sqrt(8 ftol C*) / s = 2 sqrt((n - 5) ftol).
+    """
+    from scipy.optimize import least_squares
+
+    from zoneprofile.zoning.steps import _erf_model, _erf_problem, _trust_region_fit
+
+    ftol = 1e-8  # scipy's default, used by _trust_region_fit
+    checked_sd = 0
+    for t, yy, p0, lower, upper, scale in _erf_cases():
+        residuals, jacobian = _erf_problem(t, yy, lower, upper)
+        ours = _trust_region_fit(residuals, jacobian, p0, lower, upper, scale)
+        ref = least_squares(lambda p: _erf_model(p, t) - yy, p0, bounds=(lower, upper), x_scale=scale)
+        assert ours.success and ref.success
+        c_star = min(ours.cost, ref.cost)
+        assert abs(ours.cost - ref.cost) <= ftol * c_star
+        curve = _erf_model(ours.x, t) - _erf_model(ref.x, t)
+        assert np.linalg.norm(curve) <= np.sqrt(8 * ftol * c_star)
+        jtj = ref.jac.T @ ref.jac
+        if np.linalg.cond(jtj) < 1e12:  # the standard errors exist (not a sharp step at its width bound)
+            sd = np.sqrt(np.diag(np.linalg.inv(jtj)) * 2 * c_star / (t.size - 5))
+            assert np.all(np.abs(ours.x - ref.x) / sd <= 2 * np.sqrt((t.size - 5) * ftol))
+            checked_sd += 1
+    assert checked_sd >= 10
+
+
+def test_no_private_module_of_a_library_is_imported():
+    import ast
+    from pathlib import Path
+
+    import zoneprofile
+
+    root = Path(zoneprofile.__file__).parent
+    private = []
+    for path in root.rglob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            names = []
+            if isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+                names = [node.module] + [f"{node.module}.{a.name}" for a in node.names]
+            elif isinstance(node, ast.Import):
+                names = [a.name for a in node.names]
+            for name in names:
+                parts = name.split(".")
+                if parts[0] != "zoneprofile" and any(p.startswith("_") and not p.startswith("__")
+                                                     for p in parts[1:]):
+                    private.append(f"{path.relative_to(root)}: {name}")
+    assert not private
 
 
 def test_shared_work_between_passes_gives_the_same_steps():

@@ -39,42 +39,92 @@ PRELOAD = [
 ]
 
 
-class Progress:
-    """A plain-text progress bar on stderr, drawn only on a terminal."""
+_SHOWN = [0]  # length of the progress line on screen (shared: a run draws it from several places)
 
-    def __init__(self, total: int, *, enabled: bool = True, stream=None, width: int = 28):
+
+class Progress:
+    """A plain-text progress line on stderr, drawn only on a terminal.
+
+    :meth:`phase` tells what happens before the first crystal is done (reading
+    the campaign, checking inputs and the cache), so a large campaign shows a
+    line at once. The time left is estimated from the rate at which crystals
+    finish *after* the first one (worker start-up and crystals taken from the
+    cache do not count), and only once ``2 × workers`` more have finished; before
+    that the line says it is still estimating.
+    """
+
+    def __init__(self, total: int, *, enabled: bool = True, stream=None, width: int = 28, workers: int = 1):
         self.stream = stream if stream is not None else sys.stderr
-        self.enabled = bool(enabled) and hasattr(self.stream, "isatty") and self.stream.isatty()
+        try:
+            tty = hasattr(self.stream, "isatty") and self.stream.isatty()
+        except (ValueError, OSError):  # a closed stream
+            tty = False
+        self.enabled = bool(enabled) and tty
         self.total = max(int(total), 0)
         self.width = width
+        self.workers = max(int(workers), 1)
         self.start = time.monotonic()
         self._last = 0.0
+        self._first = None  # (time, crystals computed) when the first computed crystal was done
+
+    def _write(self, text: str) -> None:
+        pad = " " * max(_SHOWN[0] - len(text), 0)  # blank what a longer earlier line left
+        _SHOWN[0] = len(text)
+        self.stream.write("\r" + text + pad)
+        self.stream.flush()
+
+    def phase(self, text: str) -> None:
+        """Show what the run is doing before crystals finish (one line, replaced by the next)."""
+        if self.enabled:
+            self._write(text)
+
+    def eta_seconds(self, done: int, computed: int, now: float) -> float | None:
+        """Seconds left, or None while there is too little to go on."""
+        if computed <= 0 or done >= self.total:
+            return None
+        if self._first is None:
+            self._first = (now, computed)
+            return None
+        t0, n0 = self._first
+        if computed - n0 < 2 * self.workers or now <= t0:
+            return None
+        return (now - t0) / (computed - n0) * (self.total - done)
 
     def update(self, done: int, *, cached: int = 0, failed: int = 0, force: bool = False) -> None:
         if not self.enabled or self.total == 0:
             return
         now = time.monotonic()
+        computed = done - cached
+        if computed > 0 and self._first is None:
+            self._first = (now, computed)
         if not force and now - self._last < 0.1 and done < self.total:
             return
         self._last = now
         frac = done / self.total
         filled = int(round(frac * self.width))
         bar = "#" * filled + "." * (self.width - filled)
-        elapsed = now - self.start
-        computed = done - cached
+        left = self.eta_seconds(done, computed, now)
         eta = ""
-        if 0 < computed and done < self.total:
-            rate = elapsed / computed
-            eta = f"  about {rate * (self.total - done):.0f} s left"
-        text = (f"\rcrystals {done:>{len(str(self.total))}}/{self.total} [{bar}] {100 * frac:3.0f}%"
-                f"  {cached} from cache  {failed} failed{eta}   ")
-        self.stream.write(text)
-        self.stream.flush()
+        if left is not None:
+            eta = f"  about {_duration(left)} left"
+        elif 0 < computed and done < self.total:
+            eta = "  estimating the time left"
+        self._write(f"crystals {done:>{len(str(self.total))}}/{self.total} [{bar}] {100 * frac:3.0f}%"
+                    f"  {cached} from cache  {failed} failed{eta}")
 
     def close(self) -> None:
-        if self.enabled and self.total:
+        if self.enabled and (self.total or _SHOWN[0]):
             self.stream.write("\n")
             self.stream.flush()
+            _SHOWN[0] = 0
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.0f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
 
 
 def _failed_record(task: dict, message: str) -> dict:

@@ -282,7 +282,8 @@ def process_crystal(task: dict) -> dict:
     if scratch is not None and record.get("error"):
         record["error"] = record["error"].replace(str(scratch) + os.sep, "")
     formats = task.get("figure_formats")
-    if formats and not record.get("error"):
+    # a failed crystal is drawn too when its profile was read: the figure shows what was read and zoned
+    if formats and (not record.get("error") or record.get("profile")):
         t0 = time.perf_counter()
         try:
             record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"))
@@ -547,7 +548,7 @@ def _stages(task, record, transient):
                 timing["fitting"] = timing.get("fitting", 0.0) + time.perf_counter() - t_fit
     for text in failures:
         warnings.append(f"fit failed: {text}")
-    if boundaries and not fitted:
+    if boundaries and not fitted and params["elements"]:  # elements = []: a zoning-only campaign
         raise _StageError("fitting", _Plain("no boundary could be dated: " + failures[0]))
     record["boundaries"] = fitted
 

@@ -17,6 +17,10 @@ Each crystal's result is kept in a cache folder beside the campaign file
 only the crystals whose input files or settings changed, and a run that was
 interrupted goes on where it stopped.
 
+Exit code 0 when the report was written (failed crystals are counted in the
+summary line and listed); 2 for a bad campaign or command line, and when
+every crystal failed (the report with the reasons is still written).
+
 Diffusion timescales inform, and do not replace, hazard assessment, which
 belongs to the responsible observatory and local authorities.
 
@@ -71,9 +75,22 @@ def run(args):
     if args.workers < 1:
         raise InputError(f"--workers must be at least 1, got {args.workers}")
     formats = _formats(args.figures)
-    campaign = load_campaign(args.campaign, allow_outside=args.allow_outside)
+    from zoneprofile._paths import shown
+    from zoneprofile.campaign._executors import Progress
+
+    line = Progress(0, enabled=not args.quiet)
+    line.phase(f"reading the campaign file {shown(args.campaign)}")  # a line at once, however large the campaign
+    try:
+        campaign = load_campaign(args.campaign, allow_outside=args.allow_outside)
+    except BaseException:
+        line.close()
+        raise
     summary = run_campaign(campaign, args.out, workers=args.workers, scheduler=args.scheduler, force=args.force,
                            progress=not args.quiet, cache=not args.no_cache, formats=formats)
     if not args.quiet:
         report_summary(summary)
+    if summary.all_failed:  # a report of failures only is not a success, even with --quiet
+        sys.stderr.write(f"zoneprofile run: every crystal failed ({len(summary.failed)} of {summary.n_crystals}); "
+                         f"nothing was dated; the reasons are in {summary.out_dir / 'report.html'}\n")
+        return 2
     return 0

@@ -157,8 +157,8 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
     crystal_pngs = {}
     given = crystal_figures or {}
     for k, rec in enumerate(records):
-        if rec.get("error"):
-            continue
+        if rec.get("error") and not rec.get("profile"):
+            continue  # failed before anything was read: nothing to draw
         if k in given and given[k] is not None:
             p = Path(given[k])
             p = p if p.is_absolute() else out / p

@@ -373,6 +373,12 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     if failed:
         out.append(_table(["sample", "crystal", "reason"],
                           [[_e(r.get("sample")), _e(r.get("crystal")), _e(r.get("error"))] for r in failed]))
+        for k, r in enumerate(records):  # what was read and zoned before the failure
+            if r.get("error") and crystal_pngs.get(k) is not None:
+                name = f"{r.get('sample')} / {r.get('crystal')}"
+                out.append(_img(crystal_pngs[k], f"What was read and zoned of {name}",
+                                f"{_e(name)} (failed: {_e(r.get('error'))}): the profile as read and the "
+                                "zoning found before the failure; nothing was dated."))
     else:
         out.append("<p>None: every crystal ran to the end.</p>")
     out.append("</section>")

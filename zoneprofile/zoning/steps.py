@@ -343,112 +343,69 @@ def _erf_model(p, t):
     return a + b * (t - x0) + delta * (1.0 - ndtr((t - x0) / np.exp(log_s)))
 
 
-#: relative step of the forward differences of the erf fit: √(machine epsilon)
-_DIFF_STEP = float(np.finfo(float).eps ** 0.5)
-
-
 def _erf_jacobian(t, yy, lower, upper):
-    """Forward-difference Jacobian of the erf-step residuals.
-
-    Parameter ``i`` moves by ``h = √ε · max(1, |pᵢ|)`` (sign of ``pᵢ``, zero
-    counting as positive); a move that would leave the bounds is reversed when
-    the reverse fits, else it goes to the farther bound. These are the steps
-    of ``scipy.optimize.least_squares``' own ``'2-point'`` differences (Nocedal
-    & Wright 2006, Numerical Optimization, §8.1), and every residual is
-    computed with the same operations as :func:`_erf_model`, so the fit
-    follows the same path as with the built-in differences; the terms that a
-    move leaves unchanged are computed once instead of once per parameter.
-    """
+    """Analytic Jacobian of the erf-step residuals (see :func:`_erf_problem`)."""
     return _erf_problem(t, yy, lower, upper)[1]
 
 
-def _erf_problem(t, yy, lower, upper):
-    """Residuals and Jacobian (see :func:`_erf_jacobian`) of the erf step, sharing work.
+_INV_SQRT_2PI = 1.0 / np.sqrt(2.0 * np.pi)
 
-    The residuals at the point where the Jacobian is asked for were computed
-    just before (the solver evaluates a point, then its Jacobian when it
-    accepts it); their terms are kept and not computed again.
+
+def _erf_problem(t, yy, lower, upper):
+    """Residuals and analytic Jacobian of the erf step, sharing work.
+
+    With ``d = t - x0``, ``s = exp(log_s)``, ``z = d / s``, ``Φ`` the normal
+    cdf and ``φ`` its density, the residual ``a + b d + δ (1 - Φ(z)) - y`` has
+    the derivatives ``1``, ``d``, ``1 - Φ(z)``, ``-b + δ φ(z) / s`` (by
+    ``x0``) and ``δ φ(z) z`` (by ``log_s``). The residuals at the point where
+    the Jacobian is asked for were computed just before (the solver evaluates
+    a point, then its Jacobian when it accepts it); their terms are kept.
+    ``lower`` and ``upper`` are not needed by the analytic form and kept for
+    the signature.
     """
-    lower = [float(v) for v in lower]
-    upper = [float(v) for v in upper]
     last = {}
 
     def terms(p):
         a, b, delta, x0, log_s = p
         d = t - x0
-        e = 1.0 - ndtr(d / np.exp(log_s))
-        slope = b * d
-        jump = delta * e
-        base = a + slope
-        return d, e, slope, jump, base, base + jump - yy  # the operations of _erf_model, then - y
+        s = np.exp(log_s)
+        z = d / s
+        e = 1.0 - ndtr(z)
+        return d, s, z, e, a + b * d + delta * e - yy  # the operations of _erf_model, then - y
 
     def residuals(p):
         last.clear()
         last[p.tobytes()] = kept = terms(p)
-        return kept[5]
+        return kept[4]
 
     def jacobian(p):
-        h = []
-        for v, lo, hi in zip(p.tolist(), lower, upper):
-            step = _DIFF_STEP * (1.0 if v >= 0 else -1.0) * max(1.0, abs(v))
-            below, above = v - lo, hi - v
-            if abs(step) <= max(below, above):
-                if not lo <= v + step <= hi:
-                    step = -step
-            else:
-                step = above if above >= below else -below
-            h.append(step)
         a, b, delta, x0, log_s = p
-        ha, hb, hd, hx, hs = h
         kept = last.get(p.tobytes())
-        d, e, slope, jump, base, f0 = kept if kept is not None else terms(p)
-        # each moved residual is summed in the order of _erf_model: (a + slope) + jump - y
-        jac_t = np.empty((5, t.size))
-        jac_t[0] = (a + ha) + slope + jump - yy - f0
-        jac_t[1] = a + (b + hb) * d + jump - yy - f0
-        jac_t[2] = base + (delta + hd) * e - yy - f0
-        d_x = t - (x0 + hx)
-        jac_t[3] = a + b * d_x + delta * (1.0 - ndtr(d_x / np.exp(log_s))) - yy - f0
-        jac_t[4] = base + delta * (1.0 - ndtr(d / np.exp(log_s + hs))) - yy - f0
-        jac_t /= np.array([(a + ha) - a, (b + hb) - b, (delta + hd) - delta, (x0 + hx) - x0,
-                           (log_s + hs) - log_s])[:, None]
-        return jac_t.T
+        d, s, z, e, _ = kept if kept is not None else terms(p)
+        dens = delta * _INV_SQRT_2PI * np.exp(-0.5 * z * z)
+        jac = np.empty((t.size, 5))
+        jac[:, 0] = 1.0
+        jac[:, 1] = d
+        jac[:, 2] = e
+        jac[:, 3] = dens / s - b
+        jac[:, 4] = dens * z
+        return jac
 
     return residuals, jacobian
 
 
 def _trust_region_fit(residuals, jacobian, p0, lower, upper, x_scale):
-    """Bounded nonlinear least squares by the trust-region reflective method.
+    """Bounded nonlinear least squares: ``scipy.optimize.least_squares``, trust-region reflective.
 
-    The method of ``scipy.optimize.least_squares(method="trf")`` (Branch,
-    Coleman & Li 1999, SIAM J. Sci. Comput. 21:1) with its default tolerances
-    and a linear loss, called without the wrappers that ``least_squares`` puts
-    around every evaluation (they cost about a sixth of a small fit). The
-    result is the same, bit for bit (tests/test_zoning_steps.py checks it);
-    where scipy's private solver is not available, ``least_squares`` itself
-    is called.
+    The method of Branch, Coleman & Li (1999, SIAM J. Sci. Comput. 21:1) with
+    scipy's default tolerances (``ftol = xtol = gtol = 1e-8``), a linear loss
+    and the analytic Jacobian of :func:`_erf_problem`.
     """
-    lower = np.asarray(lower, dtype=float)
-    upper = np.asarray(upper, dtype=float)
-    x_scale = np.asarray(x_scale, dtype=float)
     from scipy.optimize import least_squares  # imported here: slow to import, most commands never fit
 
-    try:
-        from scipy.optimize._lsq.common import make_strictly_feasible
-        from scipy.optimize._lsq.trf import trf
-    except ImportError:  # pragma: no cover - another layout of scipy
-        trf = None
-    if trf is not None:
-        p = make_strictly_feasible(np.atleast_1d(p0).astype(float), lower, upper)
-        f0 = np.atleast_1d(residuals(p))
-        if not np.all(np.isfinite(f0)):
-            raise ValueError("Residuals are not finite in the initial point.")
-        try:
-            return trf(residuals, lambda q, *_: jacobian(q), p, f0, jacobian(p), lower, upper, 1e-8, 1e-8, 1e-8,
-                       None, x_scale, None, "exact", {}, 0)
-        except TypeError:  # pragma: no cover - another signature of scipy's internal solver
-            pass
-    return least_squares(residuals, p0, jac=jacobian, bounds=(lower, upper), x_scale=x_scale)
+    return least_squares(residuals, p0, jac=jacobian, bounds=(np.asarray(lower, dtype=float),
+                                                              np.asarray(upper, dtype=float)),
+                         x_scale=np.asarray(x_scale, dtype=float), method="trf")
 
 
 def fit_step(x, y, k, *, lo_um, hi_um, noise_sd, max_width_um, blocked=(), sharp=False):

@@ -441,8 +441,8 @@ def _resolve_input(ctx, folder: Path, value, where, *, allow_outside: bool) -> t
     if "\x00" in text:
         raise ctx.fail(where, "the path holds a NUL character; no file can be named so")
     if len(text) > 4096 or any(len(part.encode("utf-8")) > 255 for part in Path(text).parts):
-        raise ctx.fail(where, f"path '{_short(text)}' is too long (a name above 255 bytes or a path above 4096 "
-                              "characters)")
+        raise ctx.fail(where, f"path '{_short(text)}' is too long, longer than the file system allows (a name "
+                              "above 255 bytes or a path above 4096 characters)")
     base = str(folder)
     try:
         full_s = os.path.realpath(os.path.join(base, os.path.expanduser(text)))
@@ -524,10 +524,10 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         message = " ".join(str(exc).split())
         raise InputError(f"not a valid TOML file: {message}", path=shown(p)) from None
     except RecursionError:  # arrays or inline tables nested thousands deep
-        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
+        message = f"values nested too deeply (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
         raise InputError(message, path=shown(p)) from None
     if _depth(doc) > MAX_TOML_DEPTH:
-        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
+        message = f"values nested too deeply (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
         raise InputError(message, path=shown(p))
     ctx = _Context(p, text)
     folder = p.resolve().parent

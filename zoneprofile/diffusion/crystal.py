@@ -242,7 +242,7 @@ def _least_squares(obj, x0, lo, hi, max_nfev=300):
 
     x0 = np.clip(np.asarray(x0, float), lo + 1e-9, hi - 1e-9)
     sol = least_squares(obj.residuals, x0, bounds=(lo, hi), method="trf", diff_step=1e-4,
-                        x_scale=1.0, xtol=1e-7, ftol=1e-9, max_nfev=max_nfev)
+                        x_scale=1.0, xtol=1e-5, ftol=1e-7, max_nfev=max_nfev)
     return sol.x, sol
 
 

@@ -305,6 +305,7 @@ def test_cli_crystal_writes_record(crystal_csv, tmp_path, capsys):
     (("--boundary-um", "60", "--path", "p.csv"), "--path is not available with --crystal"),
     (("--boundary-um", "60", "60"), "given twice"),
     (("--boundary-um", "500"), "outside the profile"),
+    (("--boundary-um", "60", "--law", "cherniak2007-ti-quartz"), "not among --element"),
 ])
 def test_cli_crystal_bad_input(crystal_csv, tmp_path, capsys, extra, words):
     out = tmp_path / "C.json"

@@ -136,11 +136,19 @@ def run_crystal(args):
     if len(set(positions)) != len(positions):
         raise InputError("a boundary position is given twice in --boundary-um")
     rim = "open" if args.rim == "auto" else args.rim
+    laws = None
+    if args.law:
+        from zoneprofile.diffusion.laws import get_law
+
+        law = get_law(args.law)
+        if law.element not in elements:
+            raise InputError(f"--law {law.id} is for {law.element}, which is not among --element {args.element}")
+        laws = {law.element: law.id}  # the other elements keep their default laws
     try:
         result = fit_crystal(
             profiles, mineral=mineral, positions_um=positions, temperature_c=args.temperature_c,
             temperature_sd_c=args.temperature_sd_c, an_distance_um=an_x, an=an, an_beam_um=an_beam, rim=rim,
-            laws={el: args.law for el in elements} if args.law else None, partition=args.partition,
+            laws=laws, partition=args.partition,
             draws=args.draws, seed=args.seed, obliquity="section" if args.obliquity_deg is None else args.obliquity_deg,
             position_window_um=args.boundary_window_um, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa)
     except InputError as exc:

@@ -242,7 +242,7 @@ def _least_squares(obj, x0, lo, hi, max_nfev=300):
 
     x0 = np.clip(np.asarray(x0, float), lo + 1e-9, hi - 1e-9)
     sol = least_squares(obj.residuals, x0, bounds=(lo, hi), method="trf", diff_step=1e-4,
-                        x_scale=1.0, xtol=1e-7, ftol=1e-9, max_nfev=max_nfev)
+                        x_scale=1.0, xtol=1e-5, ftol=1e-7, max_nfev=max_nfev)
     return sol.x, sol
 
 
@@ -298,7 +298,7 @@ def _laplace(obj, x, r, known_sd, fixed=()):
     """Covariance of ``x`` (Gauss–Newton), with parameters in ``fixed`` held (zero variance)."""
     lo, hi = obj.bounds()
     jac = _jacobian(obj, x, lo, hi, r0=r)
-    dof = max(r.size - x.size - sum(len(em.y) and 0 for em in obj.elements), 1)
+    dof = max(r.size - x.size, 1)
     s2 = 1.0 if known_sd else max(float(r @ r) / dof, 1e-300)
     free = np.array([j for j in range(x.size) if j not in set(fixed)], int)
     cov = np.zeros((x.size, x.size))
@@ -312,7 +312,6 @@ def _laplace(obj, x, r, known_sd, fixed=()):
 
 def _crossing(f, a, b, level, iters=10):
     """x in [a, b] where f(x) = level, f(a) < level <= f(b) (bisection on the conditional Δχ²)."""
-    fa = f(a)
     for _ in range(iters):
         m = 0.5 * (a + b)
         if f(m) < level:
@@ -742,7 +741,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
                 g = time_summary(g_scaled[:, k] if k < obj.n - 1 else ages[:, k])
             age_s.append(a)
             gap_s.append(g)
-            sd_log = math.sqrt(max(cov[j, j], 0.0)) / 1.0
+            sd_log = math.sqrt(max(cov[j, j], 0.0))
             info.append({"sd_log10_param": sd_log, "statement": a["statement"]})
         return age_s, gap_s[:-1], info, ages
 

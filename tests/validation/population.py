@@ -29,7 +29,7 @@ import numpy as np
 
 from . import physics
 
-VOLCANO = "Ashcombe Ridge (an invented volcano)"
+VOLCANO = "Velmorra Rise (an invented volcano)"
 CAMPAIGN_NAME = "validation.toml"
 ELEMENTS = ("Mg", "Sr")
 EVENT_AGES_DAYS = (400.0, 80.0, 7.0)       # nominal, oldest first

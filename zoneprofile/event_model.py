@@ -392,8 +392,8 @@ def fit_event_model(observations, *, k_max: int = K_MAX, spread_floor: float = S
         fits[k] = (theta, bounds, bic, eligible)
         previous = theta[:k]
         best_k = min((kk for kk in fits if fits[kk][3]), key=lambda kk: fits[kk][2], default=None)
-        if best_k is not None and k >= best_k + 1:
-            break  # one more event did not lower the criterion: stop searching
+        if best_k is not None and k >= best_k + 2:
+            break  # two more events did not lower the criterion: stop searching
     good = [k for k in fits if fits[k][3]]
     k = min(good, key=lambda kk: fits[kk][2]) if good else 1
     theta, bounds, _, _ = fits[k]

@@ -200,7 +200,7 @@ def _minimise(theta0, k, floor, data, bounds):
         f, g = _negloglik(lo + width * sg, k, floor, data)
         return f, g * width * sg * (1.0 - sg)
 
-    res = optimize.minimize(fun, x0, jac=True, method="BFGS", options={"gtol": 1e-3, "maxiter": 1000})
+    res = optimize.minimize(fun, x0, jac=True, method="BFGS", options={"gtol": 1e-2, "maxiter": 1000})
     res.x = lo + width * special.expit(res.x)
     return res
 

@@ -258,3 +258,13 @@ def test_records_single_fits_crystal_model_and_bounds():
     # the fallback combines elements only within a tolerance of position
     single = population_events(recs, element="Sr")
     assert single["n_bounds"] == 8 and single["n_dated"] == 8
+
+
+def test_malformed_crystal_model_entries_are_listed_not_fatal():
+    recs = [{"sample": "S", "crystal": "c1", "error": None, "boundaries": [],
+             "crystal_model": {"boundaries": ["junk", {"id": "B2", "position_um": 5.0, "age_days": "soon"},
+                                              {"id": "B3", "position_um": 2.0, "age_days": _td(10.0, 0.1)}]}}]
+    obs, excluded = observations_from_records(recs)
+    assert [o["boundary"] for o in obs] == ["B3"]
+    assert [x["boundary"] for x in excluded] == ["B1", "B2"]
+    assert "not a boundary entry" in excluded[0]["reason"]

@@ -570,9 +570,14 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
         sample, crystal = str(rec.get("sample", "")), str(rec.get("crystal", ""))
         ident = {"sample": sample, "crystal": crystal}
         cm = rec.get("crystal_model") or {}
-        if element is None and cm.get("boundaries"):
+        if element is None and isinstance(cm, dict) and cm.get("boundaries"):
             for j, b in enumerate(cm["boundaries"]):
-                o, why = _one(b.get("age_days"))
+                if not isinstance(b, dict):
+                    excluded.append({**ident, "boundary": f"B{j + 1}", "position_um": None,
+                                     "source": "crystal model", "element": None,
+                                     "reason": f"not a boundary entry ({type(b).__name__})"})
+                    continue
+                o, why = _one(b.get("age_days") if isinstance(b.get("age_days"), dict) else None)
                 bid = str(b.get("id") or f"B{j + 1}")
                 base = {**ident, "boundary": bid, "position_um": b.get("position_um"), "source": "crystal model",
                         "element": "+".join(cm.get("elements") or []) or None}
@@ -583,6 +588,8 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
             continue
         groups = []
         for b in rec.get("boundaries") or []:
+            if not isinstance(b, dict):
+                continue  # not a fit entry (the chronology reports malformed records itself)
             if element is not None and b.get("element") != element:
                 continue
             x = b.get("position_um")
@@ -601,7 +608,8 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
             bid = f"{x:.1f} um"
             cands, reasons = [], []
             for b in bs:
-                o, why = _one(b.get("time_days"), bool(b.get("resolved", True)))
+                td = b.get("time_days") if isinstance(b.get("time_days"), dict) else None
+                o, why = _one(td, bool(b.get("resolved", True)))
                 if o is None:
                     reasons.append(f"{b.get('element')}: {why}")
                     continue

@@ -446,8 +446,8 @@ def fit_event_model(observations, *, k_max: int = K_MAX, spread_floor: float = S
             "spread_log10": float(tau[m]), "weight": float(math.exp(logw[m])),
             "n_dated": n_eff, "t_quantile": tq,
             "median_days": 10.0 ** float(mu[m]),
-            "p2_5_days": 10.0 ** (mu[m] - half) if np.isfinite(half) else None,
-            "p97_5_days": 10.0 ** (mu[m] + half) if np.isfinite(half) else None,
+            "p2_5_days": float(10.0 ** (mu[m] - half)) if np.isfinite(half) else None,
+            "p97_5_days": float(10.0 ** (mu[m] + half)) if np.isfinite(half) else None,
             "members": members.tolist(),
         }
         events.append(ev)

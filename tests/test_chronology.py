@@ -307,3 +307,25 @@ def test_missing_numbers_from_json_nulls_do_not_crash():
 def test_population_options_are_checked(kwargs, text):
     with pytest.raises(InputError, match=text):
         population_summary([], **kwargs)
+
+
+def test_three_recharges_are_not_chained_into_one_event():
+    # regression: linking overlapping 95 % intervals merged recharges at ~400, 80 and 7 days into one
+    # event because a few wide intervals bridge the gaps; the mixture model keeps three (ids oldest first)
+    rng = np.random.default_rng(21)
+    recs = []
+    for c in range(18):
+        bs = []
+        for k, t in enumerate((400.0, 80.0, 7.0)):
+            s = 0.45 if c % 6 == 0 else rng.uniform(0.05, 0.15)  # every sixth crystal poorly resolved
+            med = t * 10 ** rng.normal(0.0, s)
+            bs.append({"position_um": 150.0 - 60 * k, "element": "Mg", "resolved": True,
+                       "time_days": {"median": med, "p2_5": med * 10 ** (-1.96 * s), "p97_5": med * 10 ** (1.96 * s)}})
+        recs.append({"sample": "S", "crystal": f"c{c}", "error": None, "boundaries": bs})
+    pop = population_summary(recs, n_bootstrap=0)
+    events = pop["elements"]["Mg"]["events"]
+    assert [e["id"] for e in events] == ["Mg-E1", "Mg-E2", "Mg-E3"]
+    for e, t in zip(events, (400.0, 80.0, 7.0)):
+        assert e["p2_5_days"] <= t <= e["p97_5_days"]
+        # the well-resolved crystals all record it (a poorly resolved boundary may land in a neighbour)
+        assert {f"c{c}" for c in range(18) if c % 6} <= {x["crystal"] for x in e["crystals"]}

@@ -200,7 +200,7 @@ def _minimise(theta0, k, floor, data, bounds):
         f, g = _negloglik(lo + width * sg, k, floor, data)
         return f, g * width * sg * (1.0 - sg)
 
-    res = optimize.minimize(fun, x0, jac=True, method="BFGS", options={"gtol": 1e-3, "maxiter": 1000})
+    res = optimize.minimize(fun, x0, jac=True, method="BFGS", options={"gtol": 1e-2, "maxiter": 1000})
     res.x = lo + width * special.expit(res.x)
     return res
 
@@ -392,8 +392,8 @@ def fit_event_model(observations, *, k_max: int = K_MAX, spread_floor: float = S
         fits[k] = (theta, bounds, bic, eligible)
         previous = theta[:k]
         best_k = min((kk for kk in fits if fits[kk][3]), key=lambda kk: fits[kk][2], default=None)
-        if best_k is not None and k >= best_k + 1:
-            break  # one more event did not lower the criterion: stop searching
+        if best_k is not None and k >= best_k + 2:
+            break  # two more events did not lower the criterion: stop searching
     good = [k for k in fits if fits[k][3]]
     k = min(good, key=lambda kk: fits[kk][2]) if good else 1
     theta, bounds, _, _ = fits[k]
@@ -446,8 +446,8 @@ def fit_event_model(observations, *, k_max: int = K_MAX, spread_floor: float = S
             "spread_log10": float(tau[m]), "weight": float(math.exp(logw[m])),
             "n_dated": n_eff, "t_quantile": tq,
             "median_days": 10.0 ** float(mu[m]),
-            "p2_5_days": 10.0 ** (mu[m] - half) if np.isfinite(half) else None,
-            "p97_5_days": 10.0 ** (mu[m] + half) if np.isfinite(half) else None,
+            "p2_5_days": float(10.0 ** (mu[m] - half)) if np.isfinite(half) else None,
+            "p97_5_days": float(10.0 ** (mu[m] + half)) if np.isfinite(half) else None,
             "members": members.tolist(),
         }
         events.append(ev)
@@ -570,9 +570,14 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
         sample, crystal = str(rec.get("sample", "")), str(rec.get("crystal", ""))
         ident = {"sample": sample, "crystal": crystal}
         cm = rec.get("crystal_model") or {}
-        if element is None and cm.get("boundaries"):
+        if element is None and isinstance(cm, dict) and cm.get("boundaries"):
             for j, b in enumerate(cm["boundaries"]):
-                o, why = _one(b.get("age_days"))
+                if not isinstance(b, dict):
+                    excluded.append({**ident, "boundary": f"B{j + 1}", "position_um": None,
+                                     "source": "crystal model", "element": None,
+                                     "reason": f"not a boundary entry ({type(b).__name__})"})
+                    continue
+                o, why = _one(b.get("age_days") if isinstance(b.get("age_days"), dict) else None)
                 bid = str(b.get("id") or f"B{j + 1}")
                 base = {**ident, "boundary": bid, "position_um": b.get("position_um"), "source": "crystal model",
                         "element": "+".join(cm.get("elements") or []) or None}
@@ -583,6 +588,8 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
             continue
         groups = []
         for b in rec.get("boundaries") or []:
+            if not isinstance(b, dict):
+                continue  # not a fit entry (the chronology reports malformed records itself)
             if element is not None and b.get("element") != element:
                 continue
             x = b.get("position_um")
@@ -601,7 +608,8 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
             bid = f"{x:.1f} um"
             cands, reasons = [], []
             for b in bs:
-                o, why = _one(b.get("time_days"), bool(b.get("resolved", True)))
+                td = b.get("time_days") if isinstance(b.get("time_days"), dict) else None
+                o, why = _one(td, bool(b.get("resolved", True)))
                 if o is None:
                     reasons.append(f"{b.get('element')}: {why}")
                     continue

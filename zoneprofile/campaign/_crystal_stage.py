@@ -1,10 +1,16 @@
 """The whole-crystal model as a campaign stage (``model = "crystal"``).
 
-Runs after the per-boundary fits of a crystal and writes
-``record["crystal_model"]`` (keys in ``docs/whole-crystal-model.md``). It never
-fails the crystal: a crystal the model cannot take (boundaries closer than the
-resolution, an element without a law, ...) keeps its per-boundary fits and
-gets one plain warning saying why the whole-crystal model was not run.
+:func:`crystal_first` runs before the per-boundary fits of a crystal. A crystal
+with two or more dated boundaries is dated by the whole-crystal model alone,
+from the zoning's boundary positions, into ``record["crystal_model"]`` (keys in
+``docs/whole-crystal-model.md``); the Monte Carlo per-boundary fits are not
+run, so ``record["boundaries"]`` and ``record["recharge_intervals_days"]`` stay
+empty. A crystal with one boundary (where the model reduces to a
+single-boundary fit) and a crystal the model cannot take (boundaries closer
+than the resolution, an element without a law, ...) are dated boundary by
+boundary as with ``model = "boundary"``; the latter gets one plain warning
+saying why. ``record["model"]`` says which way each crystal was dated
+(``docs/run-a-campaign.md``). The stage never fails the crystal.
 """
 
 from __future__ import annotations
@@ -13,7 +19,7 @@ import numpy as np
 
 from zoneprofile._validation import InputError
 
-__all__ = ["crystal_stage"]
+__all__ = ["crystal_stage", "crystal_first"]
 
 
 def _element_data(name, params, table, trace, map_profile):
@@ -83,3 +89,31 @@ def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile
         return None
     record["crystal_model"] = result.to_record()
     return record["crystal_model"]
+
+
+def crystal_first(record, boundaries, params, task, *, timing, run_stage, **data) -> bool:
+    """Date the crystal with the whole-crystal model where it applies; True when it did.
+
+    Sets ``record["model"]`` = ``{"requested": "crystal", "used": "crystal" | "boundary",
+    "note": str}``. On False the caller fits the boundaries one by one.
+    """
+    n = len({round(float(b["position_um"]), 9) for b in boundaries})
+    record["crystal_model"] = None
+    if n == 0:
+        record["model"] = {"requested": "crystal", "used": "boundary", "note": "no recharge boundary to date"}
+        return False
+    if n == 1:
+        record["model"] = {"requested": "crystal", "used": "boundary",
+                           "note": "one boundary: the whole-crystal model reduces to the single-boundary fit, "
+                                   "which is reported (boundaries)"}
+        return False
+    result = run_stage("crystal model", crystal_stage, record, boundaries, params, task, timing=timing, **data)
+    if result is None:
+        record["model"] = {"requested": "crystal", "used": "boundary",
+                           "note": "the whole-crystal model was not run (see the warnings): "
+                                   "the boundaries are dated one by one"}
+        return False
+    record["model"] = {"requested": "crystal", "used": "crystal",
+                       "note": f"{n} boundaries dated together by the whole-crystal model (crystal_model); "
+                               "no per-boundary fits"}
+    return True

@@ -310,6 +310,7 @@ def _base_record(task):
         "boundaries": [],
         "recharge_intervals_days": [],
         "map": None,
+        "model": None,
         "warnings": [],
         "timing_s": {},
     }
@@ -499,6 +500,17 @@ def _stages(task, record, transient):
     map_bounds = (map_info or {}).get("boundaries") or []
     map_positions = [float(b["position_um"]) for b in map_bounds if b.get("position_um") is not None]
 
+    # model = "crystal": the whole-crystal model dates a crystal of two or more boundaries from
+    # the zoning's positions, instead of (not after) the Monte Carlo per-boundary fits; a
+    # one-boundary crystal, or one the model cannot take, is dated boundary by boundary
+    if params.get("model") == "crystal" and params["elements"]:
+        from zoneprofile.campaign._crystal_stage import crystal_first
+
+        if crystal_first(record, boundaries, params, task, table=table, trace=trace, map_profile=map_profile,
+                         an=an, an_x=an_x, an_beam=an_beam, timing=timing, run_stage=_run_stage,
+                         map_obliquity=[b.get("obliquity_deg") for b in map_bounds]):
+            return
+
     fitted = []
     failures = []
     for rank, boundary in enumerate(boundaries):
@@ -561,10 +573,3 @@ def _stages(task, record, transient):
 
         record["recharge_intervals_days"] = _run_stage("intervals", intervals, timing=timing)
 
-    # 7. the whole-crystal model (model = "crystal"): never fails the crystal, warns instead
-    if params.get("model") == "crystal" and boundaries:
-        from zoneprofile.campaign._crystal_stage import crystal_stage
-
-        _run_stage("crystal model", crystal_stage, record, boundaries, params, task, table=table, trace=trace,
-                   map_profile=map_profile, an=an, an_x=an_x, an_beam=an_beam, timing=timing,
-                   map_obliquity=[b.get("obliquity_deg") for b in map_bounds])

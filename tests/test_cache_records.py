@@ -39,3 +39,63 @@ def test_damaged_record_reads_as_absent(tmp_path, damage):
     p = tmp_path / KEY[:2] / f"{KEY}.json"
     p.write_text(json.dumps({"key": KEY, "record": damage(_record())}))
     assert cache.get(KEY) is None
+
+
+def _summary(median):
+    return {"median": median, "p2_5": median / 2, "p97_5": median * 2, "statement": "date",
+            "upper_bound": None, "lower_bound": None}
+
+
+def _crystal_record():
+    """A record dated by the whole-crystal model (keys: docs/whole-crystal-model.md)."""
+    cm = {"boundaries": [{"id": "B1", "position_um": 150.0, "age_days": _summary(180.0),
+                          "by_element": {"Mg": _summary(180.0)}},
+                         {"id": "B2", "position_um": 30.0, "age_days": _summary(15.0),
+                          "by_element": {"Mg": _summary(15.0)}}],
+          "gaps": [{"older": "B1", "younger": "B2", "days": _summary(165.0)}], "elements": ["Mg"],
+          "warnings": [], "method": "whole-crystal"}
+    return {**_record(), "crystal_model": cm,
+            "model": {"requested": "crystal", "used": "crystal", "note": "2 boundaries dated together"}}
+
+
+def test_crystal_model_record_round_trips(tmp_path):
+    cache = ResultCache(tmp_path)
+    cache.put(KEY, _crystal_record())
+    assert cache.get(KEY)["crystal_model"]["gaps"][0]["days"]["median"] == 165.0
+
+
+def _drop_gap(r):
+    r["crystal_model"]["gaps"] = []
+    return r
+
+
+def _swap_gap(r):
+    r["crystal_model"]["gaps"][0]["older"], r["crystal_model"]["gaps"][0]["younger"] = "B2", "B1"
+    return r
+
+
+def _bad_statement(r):
+    r["crystal_model"]["boundaries"][0]["age_days"]["statement"] = "maybe"
+    return r
+
+
+def _text_median(r):
+    r["crystal_model"]["boundaries"][1]["by_element"]["Mg"]["median"] = "15"
+    return r
+
+
+@pytest.mark.parametrize("damage", [
+    _drop_gap,                                                   # one gap fewer than boundaries, no more no less
+    _swap_gap,                                                   # a gap runs from the older to the younger
+    _bad_statement,
+    _text_median,
+    lambda r: {**r, "crystal_model": []},
+    lambda r: {**r, "crystal_model": None},                      # dated by the model, its result missing
+    lambda r: {**r, "model": {"used": "both"}},
+])
+def test_damaged_crystal_model_reads_as_absent(tmp_path, damage):
+    cache = ResultCache(tmp_path)
+    cache.put(KEY, _crystal_record())
+    p = tmp_path / KEY[:2] / f"{KEY}.json"
+    p.write_text(json.dumps({"key": KEY, "record": damage(_crystal_record())}))
+    assert cache.get(KEY) is None

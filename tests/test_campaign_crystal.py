@@ -67,7 +67,8 @@ def test_demo_crystals_get_a_whole_crystal_record(tmp_path):
     make_demo(tmp_path, n_crystals=2, draws=300)
     toml = next(tmp_path.glob("*.toml"))
     text = toml.read_text()
-    text = re.sub(r'^mineral = "plagioclase"', 'mineral = "plagioclase"\nmodel = "crystal"', text, flags=re.M)
+    text = re.sub(r'^model = "[a-z]+"', 'model = "crystal"', text, flags=re.M)  # the demo's own choice, pinned
+    assert 'model = "crystal"' in text
     toml.write_text(text)
     truth = json.loads((tmp_path / "truth.json").read_text())
     events = sorted(e["time_days"] for e in truth["events"])
@@ -75,6 +76,7 @@ def test_demo_crystals_get_a_whole_crystal_record(tmp_path):
     for task in build_tasks(camp):
         rec = process_crystal(task)
         assert rec["error"] is None
+        assert rec["model"]["used"] == "crystal" and rec["boundaries"] == []  # no per-boundary fits first
         cm = rec["crystal_model"]
         assert cm is not None and cm["method"] == "whole-crystal"
         pos = [b["position_um"] for b in cm["boundaries"]]
@@ -84,3 +86,42 @@ def test_demo_crystals_get_a_whole_crystal_record(tmp_path):
             if s["statement"] == "date":
                 # some recharge of the invented history lies inside each dated interval
                 assert any(s["p2_5"] <= t <= s["p97_5"] for t in events), (b, events)
+
+
+def _demo_tasks(tmp_path, model, crystals):
+    from zoneprofile.campaign._run import build_tasks
+    from zoneprofile.demo import make_demo
+
+    make_demo(tmp_path, draws=100)
+    toml = next(tmp_path.glob("*.toml"))
+    text = re.sub(r'^model = "[a-z]+"', f'model = "{model}"', toml.read_text(), flags=re.M)
+    toml.write_text(text)
+    return [t for t in build_tasks(load_campaign(toml)) if t["crystal"] in crystals]
+
+
+def test_one_boundary_crystal_is_dated_by_the_single_fit_and_says_so(tmp_path):
+    """Demo crystal p04 records one recharge: the whole-crystal model reduces to today's fit."""
+    from zoneprofile.campaign._pipeline import process_crystal
+
+    (task,) = _demo_tasks(tmp_path, "crystal", {"p04"})
+    rec = process_crystal(task)
+    assert rec["error"] is None and rec["crystal_model"] is None
+    assert rec["model"]["used"] == "boundary" and "one boundary" in rec["model"]["note"]
+    assert [b["element"] for b in rec["boundaries"]] == ["Mg"]
+
+
+def test_crystal_the_model_refuses_falls_back_to_per_boundary_fits(tmp_path, monkeypatch):
+    """When the whole-crystal model refuses a crystal, its boundaries are dated one by one, with a warning."""
+    import zoneprofile.diffusion.crystal as crystal_module
+    from zoneprofile.campaign._pipeline import process_crystal
+
+    def refuse(*args, **kwargs):
+        raise InputError("boundaries closer than the resolution")
+
+    monkeypatch.setattr(crystal_module, "fit_crystal", refuse)
+    (task,) = _demo_tasks(tmp_path, "crystal", {"p01"})
+    rec = process_crystal(task)
+    assert rec["error"] is None and rec["crystal_model"] is None
+    assert rec["model"]["used"] == "boundary" and "not run" in rec["model"]["note"]
+    assert any("whole-crystal model not run: boundaries closer" in w for w in rec["warnings"])
+    assert len(rec["boundaries"]) == 2 and len(rec["recharge_intervals_days"]) == 1

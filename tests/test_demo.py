@@ -23,18 +23,26 @@ from conftest import run_cli
 MATCH_UM = 5.0
 
 
+def dated_boundaries(rec):
+    """A crystal's dated boundaries as (position µm, time summary, source): the whole-crystal
+    model's joint ages where the crystal was dated by it, else its single (Mg) fits."""
+    cm = rec.get("crystal_model") or {}
+    if cm.get("boundaries"):
+        return [(b["position_um"], b["age_days"], "crystal model") for b in cm["boundaries"]]
+    return [(b["position_um"], b["time_days"], "single fit") for b in rec["boundaries"] if b["element"] == "Mg"]
+
+
 def match_truth(results, truth):
-    """Pair each planted boundary with the dated (Mg) boundary nearest to it."""
+    """Pair each planted boundary with the dated boundary nearest to it."""
     out = []
     records = {(r["sample"], r["crystal"]): r for r in results["crystals"]}
     for c in truth["crystals"]:
         rec = records[(c["sample"], c["crystal"])]
         for b in c["boundaries"]:
-            near = [d for d in rec["boundaries"] if d["element"] == "Mg"
-                    and abs(d["position_um"] - b["position_um"]) <= MATCH_UM]
-            near.sort(key=lambda d: abs(d["position_um"] - b["position_um"]))
+            near = [d for d in dated_boundaries(rec) if abs(d[0] - b["position_um"]) <= MATCH_UM]
+            near.sort(key=lambda d: abs(d[0] - b["position_um"]))
             out.append({"crystal": c["crystal"], "truth_um": b["position_um"], "truth_days": b["time_days"],
-                        "dated": near[0]["time_days"] if near else None})
+                        "dated": near[0][1] if near else None, "source": near[0][2] if near else None})
     return out
 
 
@@ -74,9 +82,22 @@ def test_demo_writes_report_results_tables_figures_and_campaign(demo_dir, result
 
 
 def test_results_hold_dated_boundaries_intervals_and_provenance(results, demo_dir):
+    # the demo campaign uses the whole-crystal model: crystals of two boundaries are dated by it
+    # (ages and the gap between them), one-boundary crystals by today's single fit, and each
+    # record says which way it went
+    by_model = {"crystal": [], "boundary": []}
+    for r in results["crystals"]:
+        by_model[r["model"]["used"]].append(r)
+        assert r["model"]["requested"] == "crystal"
+    assert len(by_model["crystal"]) >= 4
+    for r in by_model["crystal"]:
+        cm = r["crystal_model"]
+        assert len(cm["boundaries"]) == 2 and len(cm["gaps"]) == 1 and cm["method"] == "whole-crystal"
+        assert r["boundaries"] == [] and r["recharge_intervals_days"] == []  # no per-boundary Monte Carlo
+    for r in by_model["boundary"]:
+        assert r["crystal_model"] is None and len(r["boundaries"]) == 1
+        assert r["model"]["note"].startswith("one boundary")
     boundaries = [b for r in results["crystals"] for b in r["boundaries"]]
-    intervals = [i for r in results["crystals"] for i in r["recharge_intervals_days"]]
-    assert len(boundaries) >= 4 and len(intervals) >= 2
     prov = results["provenance"]
     assert prov["software"]["name"] == "zoneprofile"
     # every input is listed with the sha256 of its bytes (hashlib, an independent recomputation)
@@ -89,39 +110,75 @@ def test_results_hold_dated_boundaries_intervals_and_provenance(results, demo_di
     laws = prov["laws"]
     assert laws and all(law.get("citation") for law in (laws.values() if isinstance(laws, dict) else laws))
     assert "curve" not in boundaries[0] and "time_draws_days" not in boundaries[0]
+    # the crystal-model ages and gaps are in the tables too
+    import pandas as pd
+
+    gaps = pd.read_csv(demo_dir / "tables" / "gaps.csv")
+    assert set(gaps["source"]) == {"crystal model"} and len(gaps) == len(by_model["crystal"])
+    ages = pd.read_csv(demo_dir / "tables" / "crystal_model.csv")
+    assert len(ages[ages["element"] == "joint"]) == 2 * len(by_model["crystal"])
 
 
 def test_each_planted_boundary_is_found_and_its_time_recovered(results, truth):
     matches = match_truth(results, truth)
     planted = sum(len(c["boundaries"]) for c in truth["crystals"])
-    found = [m for m in matches if m["dated"] is not None]
+    found = [m for m in matches if m["dated"] is not None and m["dated"]["statement"] == "date"]
     assert len(found) == planted, matches  # every planted recharge boundary was dated
     inside = [m for m in found if m["dated"]["p2_5"] <= m["truth_days"] <= m["dated"]["p97_5"]]
     assert len(inside) >= 0.8 * len(found), matches
     # and no boundary is dated where nothing was planted
-    n_dated = sum(len(r["boundaries"]) for r in results["crystals"])
+    n_dated = sum(len(dated_boundaries(r)) for r in results["crystals"])
     assert n_dated == len(found)
+
+
+def test_each_crystal_gap_holds_the_true_time_between_the_recharges(results, truth):
+    """The gap between a crystal's two recharges (the whole-crystal model's residence time)."""
+    true_gap = abs(truth["events"][0]["time_days"] - truth["events"][1]["time_days"])
+    gaps = [g["days"] for r in results["crystals"] for g in (r["crystal_model"] or {}).get("gaps", [])]
+    two = sum(1 for c in truth["crystals"] if len(c["boundaries"]) == 2)
+    assert len(gaps) == two
+    for g in gaps:
+        assert g["statement"] == "date" and g["p2_5"] > 0  # ordered by construction: never negative
+    inside = [g for g in gaps if g["p2_5"] <= true_gap <= g["p97_5"]]
+    assert len(inside) >= 0.8 * len(gaps), gaps
 
 
 def test_the_mapped_crystal_is_corrected_for_obliquity(results, truth):
     mapped = next(c for c in truth["crystals"] if c["kind"] == "map")
     rec = next(r for r in results["crystals"] if r["crystal"] == mapped["crystal"])
     assert rec["map"]["calibration"]["r2"] >= 0.98
-    for b in rec["boundaries"]:
-        assert b["obliquity_deg"] == pytest.approx(mapped["boundaries"][0]["obliquity_deg"], abs=5)
+    angles = [b["obliquity_deg"] for b in rec["boundaries"]]
+    if rec["crystal_model"]:
+        assert rec["crystal_model"]["obliquity"]["kind"] == "measured"
+        angles.append(rec["crystal_model"]["obliquity"]["deg"])
+    assert angles
+    for angle in angles:
+        assert angle == pytest.approx(mapped["boundaries"][0]["obliquity_deg"], abs=5)
 
 
 def test_the_two_recharge_events_are_found(results, truth):
-    events = results["population"]["elements"]["Mg"]["events"]
-    assert len(events) == 2, [(e["median_days"], e["n_boundaries"]) for e in events]
-    found = sorted(events, key=lambda e: e["median_days"])
-    planted = sorted(truth["events"], key=lambda e: e["time_days"])
+    """The population's events (results["population"]["events"], E1 the oldest)."""
+    block = results["population"]["events"]
+    events = block["events"]
+    assert len(events) == 2, [(e["age_days"], e["n_boundaries"]) for e in events]
+    assert [e["id"] for e in events] == ["E1", "E2"]
+    assert events[0]["age_days"]["median"] > events[1]["age_days"]["median"]  # E1 the oldest
+    planted = sorted(truth["events"], key=lambda e: -e["time_days"])
     n_analysed = len(results["crystals"])
-    for event, true in zip(found, planted):
-        assert event["p2_5_days"] <= true["time_days"] <= event["p97_5_days"]
-        recorded = sum(1 for c in truth["crystals"] if any(b["event"] == true["name"] for b in c["boundaries"]))
-        assert event["n_crystals"] == recorded
-        assert event["fraction_of_crystals"] == pytest.approx(recorded / n_analysed)
+    for event, true in zip(events, planted):
+        age = event["age_days"]
+        assert age["statement"] == "date" and age["p2_5"] <= true["time_days"] <= age["p97_5"]
+        holders = [c for c in truth["crystals"] if any(b["event"] == true["name"] for b in c["boundaries"])]
+        assert event["n_crystals"] == len(holders)
+        assert event["fraction_of_crystals"] == pytest.approx(len(holders) / n_analysed)
+        for sample in {c["sample"] for c in truth["crystals"]}:
+            assert event["by_sample"][sample] == sum(1 for c in holders if c["sample"] == sample)
+
+
+def test_the_report_shows_the_chronology(demo_dir):
+    text = " ".join(re.sub(r"<[^>]+>", " ", (demo_dir / "report.html").read_text()).split())
+    assert "Recharge events of the population" in text
+    assert "E1" in text and "E2" in text
 
 
 @pytest.mark.slow  # two worker processes; 3 s idle, 11 s with the machine shared
@@ -132,9 +189,11 @@ def test_campaign_reruns_to_the_same_times_with_two_workers(demo_dir, results, t
     assert code == 0, err
     again = json.loads((out / "results.json").read_text())
     assert again["provenance"]["run"]["from_cache"] == []
-    first = {(r["sample"], r["crystal"]): [b["time_days"] for b in r["boundaries"]] for r in results["crystals"]}
-    second = {(r["sample"], r["crystal"]): [b["time_days"] for b in r["boundaries"]] for r in again["crystals"]}
+    first = {(r["sample"], r["crystal"]): dated_boundaries(r) for r in results["crystals"]}
+    second = {(r["sample"], r["crystal"]): dated_boundaries(r) for r in again["crystals"]}
     assert first == second
+    assert [r["crystal_model"] and r["crystal_model"]["gaps"] for r in results["crystals"]] == [
+        r["crystal_model"] and r["crystal_model"]["gaps"] for r in again["crystals"]]
 
 
 def test_edit_one_temperature_recomputes_one_crystal(demo_dir, tmp_path):

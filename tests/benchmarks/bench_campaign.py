@@ -30,6 +30,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import re
 import shutil
 import subprocess
 import sys
@@ -113,7 +114,9 @@ def main(argv=None):
     tomls = {}
     for m in models:
         tomls[m] = toml.with_name(f"bench-{m}.toml")
-        text = base.replace('[defaults]', f'[defaults]\nmodel = "{m}"', 1) if "\nmodel = " not in base else base
+        text = re.sub(r'^model = "[a-z]+"', f'model = "{m}"', base, count=1, flags=re.M)
+        if text == base and f'\nmodel = "{m}"' not in base:
+            text = base.replace("[defaults]", f'[defaults]\nmodel = "{m}"', 1)
         tomls[m].write_text(text)
     cache = toml.parent / ".zoneprofile-cache"
     runs = {m: {1: [], 2: []} for m in models}

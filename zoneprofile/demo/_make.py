@@ -184,6 +184,8 @@ def _campaign_text(entries, *, seed, draws, title, elements) -> str:
         "",
         "[defaults]               # applies to every crystal unless its sample or its block says otherwise",
         "mineral = \"plagioclase\"",
+        "model = \"crystal\"        # date all the boundaries of a crystal together (whole-crystal model);",
+        "#                           \"boundary\" dates each boundary on its own",
         f"elements = [{_toml_str(elements[0])}]           # element(s) to date each boundary with",
         f"beam_um = {EPMA_BEAM_UM:g}              # microprobe beam diameter (µm, FWHM of a Gaussian)",
         f"trace_beam_um = {LA_SPOT_UM:g}        # laser spot width along the traverse (µm)",

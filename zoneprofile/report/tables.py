@@ -1,4 +1,5 @@
-"""Tables for a supplement: zones, fits, intervals, crystals, events, event members, gaps (CSV).
+"""Tables for a supplement: zones, fits, intervals, crystals, events, event members, gaps,
+whole-crystal model ages (CSV).
 
 One tidy table per topic, one row per item, units in column names. Written
 with :func:`zoneprofile._output.write_table`, which neutralises text cells that
@@ -119,15 +120,22 @@ def crystals_table(records) -> pd.DataFrame:
     for r in records:
         z = r.get("zones") or {}
         bs = r.get("boundaries") or []
-        n_warn = len(r.get("warnings") or []) + sum(len(b.get("warnings") or []) for b in bs)
+        # a crystal dated by the whole-crystal model: its boundaries and gaps are there
+        cm = r.get("crystal_model") if isinstance(r.get("crystal_model"), dict) else {}
+        cmb = [b for b in cm.get("boundaries") or [] if isinstance(b, dict)]
+        n_warn = (len(r.get("warnings") or []) + sum(len(b.get("warnings") or []) for b in bs)
+                  + len(cm.get("warnings") or []))
         prof = r.get("profile") or {}
         rows.append({
             "sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
             "status": "failed" if r.get("error") else "ok", "error": r.get("error") or "",
             "n_points": len(prof.get("distance_um") or []), "n_steps": len(z.get("steps") or []),
-            "n_resorption_surfaces": len(z.get("resorption_surfaces") or []), "n_dated_boundaries": len(bs),
-            "n_resolved": sum(1 for b in bs if b.get("resolved", True)),
-            "n_intervals": len(r.get("recharge_intervals_days") or []), "n_warnings": n_warn,
+            "n_resorption_surfaces": len(z.get("resorption_surfaces") or []),
+            "n_dated_boundaries": len(bs) or len(cmb),
+            "n_resolved": sum(1 for b in bs if b.get("resolved", True))
+            + sum(1 for b in cmb if (b.get("age_days") or {}).get("statement") == "date"),
+            "n_intervals": len(r.get("recharge_intervals_days") or []) or len(cm.get("gaps") or []),
+            "n_warnings": n_warn,
             "inputs": _join(i.get("path") for i in r.get("inputs") or []),
         })
     return _frame(rows, CRYSTAL_COLUMNS)
@@ -154,7 +162,9 @@ def events_table(population) -> pd.DataFrame:
 
 
 def write_tables(records, population, table_dir) -> list[Path]:
-    """Write zones, fits, intervals, crystals, events, event_members and gaps (CSV) into ``table_dir``."""
+    """Write zones, fits, intervals, crystals, events, event_members, gaps and crystal_model (CSV)
+    into ``table_dir``."""
+    from zoneprofile.report._crystal_table import crystal_model_table
     from zoneprofile.report.ladders import gaps_table, members_table
 
     d = Path(table_dir)
@@ -167,4 +177,5 @@ def write_tables(records, population, table_dir) -> list[Path]:
         write_table(d / "events.csv", events_table(population)),
         write_table(d / "event_members.csv", members_table(population)),
         write_table(d / "gaps.csv", gaps_table(records, population)),
+        write_table(d / "crystal_model.csv", crystal_model_table(records)),
     ]

@@ -92,13 +92,14 @@ def _demo_tasks(tmp_path, model, crystals):
     from zoneprofile.campaign._run import build_tasks
     from zoneprofile.demo import make_demo
 
-    make_demo(tmp_path, draws=100)
+    make_demo(tmp_path, draws=100, only=sorted(crystals))
     toml = next(tmp_path.glob("*.toml"))
     text = re.sub(r'^model = "[a-z]+"', f'model = "{model}"', toml.read_text(), flags=re.M)
     toml.write_text(text)
     return [t for t in build_tasks(load_campaign(toml)) if t["crystal"] in crystals]
 
 
+@pytest.mark.slow  # 5 s under load (a full single-boundary fit); the demo test covers the same path
 def test_one_boundary_crystal_is_dated_by_the_single_fit_and_says_so(tmp_path):
     """Demo crystal p04 records one recharge: the whole-crystal model reduces to today's fit."""
     from zoneprofile.campaign._pipeline import process_crystal
@@ -110,6 +111,7 @@ def test_one_boundary_crystal_is_dated_by_the_single_fit_and_says_so(tmp_path):
     assert [b["element"] for b in rec["boundaries"]] == ["Mg"]
 
 
+@pytest.mark.slow  # 5 s under load (two full single-boundary fits)
 def test_crystal_the_model_refuses_falls_back_to_per_boundary_fits(tmp_path, monkeypatch):
     """When the whole-crystal model refuses a crystal, its boundaries are dated one by one, with a warning."""
     import zoneprofile.diffusion.crystal as crystal_module

@@ -4,7 +4,7 @@ One row per boundary and clock: the joint age of all the crystal's elements
 (``element = "joint"``) and each element's own age, each with its statement
 (``date``, ``upper_bound``, ``lower_bound`` or ``none``) and bounds, and the
 boundary's concordance. The gaps between successive boundaries are in
-``gaps.csv``. Keys: ``docs/whole-crystal-model.md``.
+``gaps.csv``. Columns: ``docs/report.md``; record keys: ``docs/whole-crystal-model.md``.
 """
 
 from __future__ import annotations

@@ -102,6 +102,8 @@ def _time_cell(td, key):
 
 # --------------------------------------------------------------------------- sections
 def _summary_section(records, population) -> str:
+    from zoneprofile.report._crystal_html import counts as cm_counts
+
     by_sample = defaultdict(list)
     for r in records:
         by_sample[str(r.get("sample"))].append(r)
@@ -111,16 +113,24 @@ def _summary_section(records, population) -> str:
         ok = [r for r in recs if not r.get("error")]
         bs = [b for r in ok for b in (r.get("boundaries") or [])]
         ivs = [i for r in ok for i in (r.get("recharge_intervals_days") or [])]
-        return [_e(name), str(len(recs)), str(len(ok)), str(len(recs) - len(ok)), str(len(bs)),
-                str(sum(1 for b in bs if b.get("resolved", True))), str(len(ivs))]
+        cm = [cm_counts(r) for r in ok]  # crystals dated by the whole-crystal model
+        return [_e(name), str(len(recs)), str(len(ok)), str(len(recs) - len(ok)),
+                str(len(bs) + sum(c[0] for c in cm)),
+                str(sum(1 for b in bs if b.get("resolved", True)) + sum(c[1] for c in cm)),
+                str(len(ivs) + sum(c[2] for c in cm))]
 
     for name in sorted(by_sample):
         rows.append(line(name, by_sample[name]))
     rows.append(["<strong>all samples</strong>", *line("", records)[1:]])
     parts = [_table(["sample", "crystals", "analysed", "failed", "dated boundaries", "resolved", "intervals"],
                     rows, numeric=range(1, 7))]
-    ev_rows = []
-    for block in (population.get("elements") or {}).values():
+    from zoneprofile.report._crystal_html import glance_rows, model_of
+
+    any_model = any(model_of(r).get("boundaries") for r in records)
+    # with crystals dated by the whole-crystal model, the population's events (every crystal) come
+    # first and the per-element ones (single fits only) are left to the chronology section
+    ev_rows = glance_rows(population, format_days, _num) if any_model else []
+    for block in ([] if any_model else (population.get("elements") or {}).values()):
         for e in block.get("events") or []:
             ev_rows.append([_e(e["id"]), _e(e.get("element")), _e(format_days(e.get("median_days"))),
                             f"{_e(format_days(e.get('p2_5_days')))} – {_e(format_days(e.get('p97_5_days')))}",
@@ -147,6 +157,9 @@ def _chronology_section(population, pop_figs, records=()) -> str:
     from zoneprofile.report.ladders import ladders_html
 
     parts.append(ladders_html(records, population))
+    from zoneprofile.report._crystal_html import per_element_note
+
+    parts.append(per_element_note(records))
     for el_key, block in (population.get("elements") or {}).items():
         parts.append(f"<h3>{_e(block.get('element') or el_key)}</h3>")
         figs = pop_figs.get(el_key) or {}
@@ -247,7 +260,11 @@ def _crystal_section(k, record, fig_png) -> str:
                          _num(b.get("obliquity_deg"), 3)])
         parts.append(_table(["boundary", "kind", "element", "law", "best", "median", "68% range", "95% range",
                              "resolved", "obliquity (°)"], rows))
-    else:
+    from zoneprofile.report._crystal_html import crystal_model_html
+
+    cm_html = crystal_model_html(record, _table)
+    parts.append(cm_html)
+    if not bs and not cm_html:
         parts.append("<p>No boundary dated in this crystal.</p>")
     ivs = _intervals_rows([record])
     if ivs:
@@ -353,12 +370,20 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     out.append(f'<section id="chronology"><h2>Recharge chronology</h2>'
                f"{_chronology_section(population, population_pngs, records)}</section>")
     iv_rows = _intervals_rows(records)
+    from zoneprofile.report._crystal_html import gap_rows
+
+    cm_gaps = gap_rows(records)
     out.append('<section id="intervals"><h2>Time between recharges</h2>'
-               "<p>Inner minus outer boundary time per Monte Carlo draw (draws of one crystal share the "
-               "temperature draw), summarised by percentiles; negative draws are kept and reported.</p>"
-               + (_table(["sample", "crystal", "element", "outer", "inner", "median", "95% range",
-                          "fraction negative"], iv_rows, numeric=(7,)) if iv_rows
-                  else "<p>No crystal has two dated boundaries of one element.</p>") + "</section>")
+               + ("<p>Whole-crystal model: the gap between successive recharges of a crystal, a parameter of "
+                  "its model (positive by construction), with its 95% interval or a bound.</p>"
+                  + _table(["sample", "crystal", "older", "younger", "statement", "gap (95% interval) or bound"],
+                           cm_gaps) if cm_gaps else "")
+               + ("<p>Single-boundary fits: inner minus outer boundary time per Monte Carlo draw (draws of one "
+                  "crystal share the temperature draw), summarised by percentiles; negative draws are kept and "
+                  "reported.</p>" + _table(["sample", "crystal", "element", "outer", "inner", "median", "95% range",
+                                            "fraction negative"], iv_rows, numeric=(7,)) if iv_rows
+                  else "" if cm_gaps else "<p>No crystal has two dated boundaries of one element.</p>")
+               + "</section>")
     out.append('<section id="crystals"><h2>Crystals</h2>')
     if ok:
         out.append("<ul>" + "".join(

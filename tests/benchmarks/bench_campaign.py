@@ -102,7 +102,8 @@ def main(argv=None):
     made = make_demo(root / "campaign", n_crystals=a.crystals, draws=a.draws)
     t_gen = time.perf_counter() - t0
     toml = Path(made["campaign"])
-    print(f"campaign: {a.crystals} crystals, {a.draws} draws per boundary, generated in {t_gen:.1f} s ({toml})")
+    print(f"campaign: {a.crystals} crystals, {a.draws} draws per boundary, generated in {t_gen:.1f} s ({toml})",
+          flush=True)
 
     # T1 and T2: the same command, only --workers differs, each from an empty cache that it
     # fills. The machine's speed drifts by 15-25 % over minutes, so the runs are interleaved
@@ -129,6 +130,7 @@ def main(argv=None):
             t = run(["run", tomls[m], "--out", out, "--workers", workers, "--quiet"],
                     label=f"{m}, {workers} worker(s)", cpu=cpu)
             runs[m][workers].append((t, out, cpu[0]))
+            print(f"  {m}, {workers} worker(s): {t:.1f} s wall, {cpu[0]:.1f} s CPU", flush=True)
             assert json.loads((out / "results.json").read_text())["provenance"]["run"]["from_cache"] == []
 
     print()

@@ -13,6 +13,7 @@ to see the traceback of an internal error.
 from __future__ import annotations
 
 import argparse
+import errno
 import importlib
 import os
 import sys
@@ -130,8 +131,12 @@ def _environment_fault(exc: OSError) -> str | None:
     reason = ENVIRONMENT_ERRNOS.get(exc.errno)
     if reason is None:
         return None
-    where = exc.filename if exc.filename is not None else "an output file"
-    return f"{where}: cannot write: {reason}; free space or choose a writable place for the output"
+    from zoneprofile._paths import shown
+
+    where = shown(exc.filename) if exc.filename is not None else "a file"
+    if exc.errno in (errno.EACCES, errno.EPERM):
+        return f"{where}: {reason}; check the permissions of the file and its folder"
+    return f"{where}: {reason}; free space or choose a writable place for the output"
 
 
 if __name__ == "__main__":  # pragma: no cover

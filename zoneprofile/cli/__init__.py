@@ -119,8 +119,8 @@ def _closed_stdout(command) -> int:
         os.dup2(devnull, sys.stdout.fileno())
     except (OSError, ValueError):
         pass
-    sys.stderr.write(f"zoneprofile {command}: standard output was closed before the output was written; "
-                     "write to a file with --out instead\n")
+    sys.stderr.write(f"zoneprofile {command}: standard output was closed before all of it was written; "
+                     "read it to the end or redirect it to a file\n")
     return 2
 
 

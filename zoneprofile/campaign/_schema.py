@@ -28,7 +28,6 @@ campaign file, the line and the key.
 from __future__ import annotations
 
 import difflib
-import errno
 import hashlib
 import math
 import tomllib
@@ -389,22 +388,8 @@ def _resolve_input(ctx, folder: Path, value, where, *, allow_outside: bool) -> t
     text = _text(ctx, value, where)
     if not text.strip():
         raise ctx.fail(where, "empty path")
-    if "\x00" in text:
-        raise ctx.fail(where, "the path holds a NUL character; no file can be named so")
-    shown = text if len(text) <= 60 else text[:57] + "..."
-    if len(text) > 4096 or any(len(part.encode("utf-8")) > 255 for part in Path(text).parts):
-        raise ctx.fail(where, f"path '{shown}' is too long (a name above 255 bytes or a path above 4096 characters)")
     p = Path(text).expanduser()
-    try:
-        full = (p if p.is_absolute() else folder / p).resolve()
-        full.stat()
-    except RuntimeError:  # Path.resolve on a symlink loop
-        raise ctx.fail(where, f"path '{shown}' runs into a loop of symbolic links") from None
-    except OSError as exc:
-        if exc.errno == errno.ELOOP:
-            raise ctx.fail(where, f"path '{shown}' runs into a loop of symbolic links") from None
-        if exc.errno not in (errno.ENOENT, errno.ENOTDIR):
-            raise ctx.fail(where, f"path '{shown}' cannot be used: {exc.strerror}") from None
+    full = (p if p.is_absolute() else folder / p).resolve()
     try:
         rel = full.relative_to(folder)
     except ValueError:
@@ -464,14 +449,12 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
     except tomllib.TOMLDecodeError as exc:
         message = " ".join(str(exc).split())
         raise InputError(f"not a valid TOML file: {message}", path=p) from None
-    except RecursionError:
-        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
-        raise InputError(message, path=p) from None
-    if _depth(doc) > MAX_TOML_DEPTH:
-        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs a few"
-        raise InputError(message, path=p)
     ctx = _Context(p, text)
     folder = p.resolve().parent
+
+    if _depth(doc) > MAX_TOML_DEPTH:
+        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs four"
+        raise InputError(message, path=p)
 
     _check_keys(ctx, doc, (), _TOP_KEYS)
     title = _text(ctx, doc.get("title", ""), ("title",))

@@ -725,6 +725,14 @@ def _fit_boundary(
         "floor_delta_chi2": floor_delta_chi2,
         "profile_upper_log10_dt": upper_log10_dt,
     }
+    if sd is None:
+        warnings.append(
+            f"no precision given (value_sd, or a '_sd' column): the noise was estimated from the fit's residuals "
+            f"(sd ≈ {math.sqrt(chi2 / dof):.3g}); the reduced χ² is then in data units squared, not a test of fit")
+    if boundary_um is None and plan is not None and plan["neighbours"]:
+        others = ", ".join(f"{n['position_um']:.1f}" for n in plan["neighbours"])
+        warnings.append(f"only the largest step was dated; other steps at {others} µm were left undated (give "
+                        "--boundary-um with every position to date each)")
     result = propagate(context)
     result.warnings = warnings + result.warnings
     td = result.time_days

@@ -755,14 +755,14 @@ def _fit_boundary(
     if grid_bias > GRID_ERROR_FRACTION * stat_rel and _h_um is None and _depth == 0:
         h_new = math.sqrt(GRID_ERROR_FRACTION * stat_rel * 12.0 * 2.0 * dt_um2)
         if h_new < 0.9 * h_at:
-            return _fit_boundary(**{**call, "boundary_um": boundary_um}, _plan=plan if _plan is not None else None,
-                                 _shape_c=_shape_c, _h_um=h_new)
+            # the same window and neighbours (they do not depend on the grid), finer cells
+            return _fit_boundary(**call, _plan=plan, _shape_c=_shape_c, _h_um=h_new)
     orientation_entry = None
     if orientation is not None:
         from zoneprofile.diffusion import orientation as _orientation
         from zoneprofile.diffusion.laws.olivine import ANISOTROPY_001_OVER_100
 
-        _orientation.apply(result, orientation, ANISOTROPY_001_OVER_100, seed)
+        _orientation.apply(result, orientation, ANISOTROPY_001_OVER_100)
         orientation_entry = orientation.to_dict(ANISOTROPY_001_OVER_100)
         if not orientation.known:
             result.warnings.append(_orientation.UNKNOWN_WARNING)

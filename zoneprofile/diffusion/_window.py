@@ -11,9 +11,10 @@ decides whether the boundary could be dated alone. The rules (written out in
 - **Spread of a step.** A diffused step seen through a Gaussian spot is, to
   first order, an error function of sd ``s = √(2·D·t + σ_beam²)`` (Crank 1975,
   eq. 2.14, convolved with the spot). Before a fit, ``s`` of every step is
-  measured by fitting an error function to the element's own points
-  (:func:`erf_step`); after the fit, ``s`` of the dated boundary is computed
-  from the fitted D·t and the spot.
+  measured by fitting error functions to the element's own points
+  (:func:`step_model`); for a trace element in plagioclase each neighbour is
+  fitted alone instead. After the fit, ``s`` of the dated boundary is
+  computed from the fitted D·t and the spot.
 - **Diffused zone.** ``|x − b| < Z·s`` with ``Z = 2.5``: 99.4 % of the step's
   change lies inside (Φ(2.5) = 0.9938), so beyond it the profile is a plateau
   to 0.6 % of the step, below the 1–2 % precision of a good analysis.
@@ -110,30 +111,6 @@ def _fit_steps(x, y, positions, spreads, b_bounds, s_bounds, factors=(0.5, 1.0, 
             _, coef = linear(sol.x)
             best = (sol.x[:k].copy(), np.exp(sol.x[k:]), float(coef[0]), coef[2:2 + k].copy(), chi2, coef)
     return best
-
-
-def erf_step(x, y, b_guess, *, half_range_um=None):
-    """Apparent position, spread s (µm), plateau and size of one step near ``b_guess``.
-
-    ``half_range_um``: how far the position may move (default: the data range).
-    Returns a dict or None when the fit fails.
-    """
-    x = np.asarray(x, float)
-    y = np.asarray(y, float)
-    if x.size < 6:
-        return None
-    spacing = float(np.median(np.diff(x)))
-    span = float(x[-1] - x[0])
-    h = span if half_range_um is None else float(half_range_um)
-    b_lo, b_hi = max(b_guess - h, x[0]), min(b_guess + h, x[-1])
-    if b_hi <= b_lo:
-        return None
-    out = _fit_steps(x, y, [b_guess], [2.0 * spacing], [(b_lo, b_hi)], [(0.05 * spacing, 2.0 * span)])
-    if out is None:
-        return None
-    b, s, a, d, chi2, _ = out
-    return {"position_um": float(b[0]), "spread_um": float(s[0]), "plateau": a, "size": float(d[0]),
-            "chi2": chi2}
 
 
 #: An precision floor (mol%, 1 sd) of a microprobe analysis, common practice

@@ -350,7 +350,7 @@ def test_closed_stdout_is_one_line(tmp_path):
     finally:
         os.close(write)
     assert proc.returncode == 2, proc.stderr
-    assert proc.stderr.count("\n") == 1 and "standard output is closed" in proc.stderr
+    assert proc.stderr.count("\n") == 1 and "standard output was closed" in proc.stderr
 
 
 @pytest.mark.parametrize("code, expected", [(errno.ENOSPC, "no space left"), (errno.EROFS, "read-only"),

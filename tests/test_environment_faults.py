@@ -9,6 +9,7 @@ write fails with EACCES / EROFS, or is opened on /dev/full (ENOSPC on write).
 """
 
 import errno
+import io
 import os
 import subprocess
 import sys
@@ -76,11 +77,14 @@ def test_closed_stdout_in_process(tmp_path, monkeypatch, capsys):
         def flush(self):
             pass
 
+        def fileno(self):  # not a real file descriptor, as pytest's capture
+            raise io.UnsupportedOperation("fileno")
+
     capsys.readouterr()
     monkeypatch.setattr(sys, "stdout", Closed())
     assert main(_zones(tmp_path, tmp_path / "z.json")) == 2
     err = capsys.readouterr().err
-    assert err.count("\n") == 1 and "standard output is closed" in err
+    assert err.count("\n") == 1 and "standard output" in err and "closed" in err
     assert (tmp_path / "z.json").exists()  # the results were complete before the summary line
 
 
@@ -93,4 +97,4 @@ def test_closed_pipe_in_a_real_process(tmp_path):
     with proc.stderr:
         err = proc.stderr.read().decode()
     assert proc.wait(timeout=120) == 2, err
-    assert err.count("\n") == 1 and "standard output is closed" in err, err
+    assert err.count("\n") == 1 and "standard output" in err and "closed" in err, err

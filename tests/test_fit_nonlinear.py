@@ -135,6 +135,6 @@ def test_olivine_fit_reports_the_implicit_solver():
     from zoneprofile.diffusion import fit_boundary
 
     r = fit_boundary(data["distance_um"], data["value"], element="FeMg", mineral="olivine", temperature_c=1180.0,
-                     fo2_pa=1e-6, beam_um=2.0, draws=200)
+                     fo2_pa=1e-6, beam_um=2.0, draws=200, direction="[001]")  # the profile's own axis
     assert r.time_days["p2_5"] <= 40.0 <= r.time_days["p97_5"]
     assert np.all(r.band_low <= r.model + 1e-9) and np.all(r.band_high >= r.model - 1e-9)

@@ -174,8 +174,10 @@ def test_olivine_femg_nonlinear_recovery():
                                              time_days=5.0, boundary_um=50.0, outer=78.0, inner=86.0,
                                              an_outer=None, an_inner=None, noise_sd=0.15, fo2_pa=1e-5,
                                              beam_um=2.0)
+    # the profile was made along [001], the law's own axis: say so (without it the orientation is unknown)
     r = fit_boundary(data["distance_um"], data["value"], element="FeMg", mineral="olivine",
-                     temperature_c=1150.0, temperature_sd_c=10.0, fo2_pa=1e-5, beam_um=2.0, draws=300)
+                     temperature_c=1150.0, temperature_sd_c=10.0, fo2_pa=1e-5, beam_um=2.0, draws=300,
+                     direction="[001]")
     assert r.time_days["p2_5"] <= 5.0 <= r.time_days["p97_5"]
     assert r.time_days["best"] == pytest.approx(5.0, rel=0.2)
     assert "Crank-Nicolson" in r.setup["solver"]
@@ -220,7 +222,7 @@ def test_sharp_olivine_step_gives_a_finite_upper_bound():
     s = 3.0 / (2 * math.sqrt(2 * math.log(2)))
     y = 80 + 5 * ndtr((x - 30) / s) + np.random.default_rng(4).normal(0, 0.1, x.size)
     r = fit_boundary(x, y, element="FeMg", mineral="olivine", temperature_c=1100, fo2_pa=1e-6, beam_um=3.0,
-                     draws=200)
+                     draws=200, direction="[001]")
     assert r.resolved is False
     # D ≈ 1e-17 m²/s at 1100 °C: a relaxed width below ~1 µm is well under a day
     assert 0 < r.time_days["upper_bound"] < 5.0

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 import tifffile
 
+from zoneprofile._validation import InputError
 from zoneprofile.cli import main
 from zoneprofile.maps import synthetic_zoned_map
 from zoneprofile.maps.readers import read_map
@@ -99,3 +100,27 @@ def test_unusable_float_maps_refused(grain, capsys, case):
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and want in err and "internal error" not in err
     assert not (d / f"{case}.csv").exists()
+
+
+def test_big_endian_npy_and_text_matrix_agree(tmp_path):
+    a = (np.arange(12 * 9).reshape(12, 9) % 97).astype(np.uint16)
+    np.save(tmp_path / "le_Ca.npy", a.astype("<u2"))
+    np.save(tmp_path / "be_Ca.npy", a.astype(">u2"))
+    np.savetxt(tmp_path / "tx_Ca.csv", a, fmt="%d", delimiter=",")
+    ref = np.asarray(read_map(tmp_path / "le_Ca.npy").data)
+    np.testing.assert_array_equal(np.asarray(read_map(tmp_path / "be_Ca.npy").data), ref)
+    np.testing.assert_array_equal(np.asarray(read_map(tmp_path / "tx_Ca.csv").data), ref)
+
+
+def test_multi_page_tiff_needs_a_channel(tmp_path):
+    pages = np.stack([np.full((8, 8), v, np.uint16) for v in (10, 20)])
+    tifffile.imwrite(tmp_path / "two.tif", pages)
+    with pytest.raises(InputError, match="2 channels .*--channel"):
+        read_map(tmp_path / "two.tif")
+    assert float(np.asarray(read_map(tmp_path / "two.tif", channel="2").data).mean()) == 20.0
+
+
+def test_underscore_in_a_text_matrix_is_refused(tmp_path):
+    (tmp_path / "u_Ca.csv").write_text("1,2,3\n4,5_0,6\n7,8,9\n")
+    with pytest.raises(InputError, match="row 2.*not a number"):
+        read_map(tmp_path / "u_Ca.csv")

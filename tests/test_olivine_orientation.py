@@ -71,3 +71,17 @@ def test_bad_directions_are_refused_plainly():
     for bad in ("[111]", "10,20", "10,20,30", "a,b,c"):
         with pytest.raises(InputError):
             parse_direction(bad)
+
+
+def test_unknown_orientation_is_one_draw_per_index_for_every_boundary_of_a_traverse():
+    # one crystal has one orientation: draw i of two boundaries carries the same factor, so the
+    # ratio of their time draws does not carry the orientation spread (the sample's and the traverse's
+    # other shared deviates are paired too, as in a campaign, through one shared seed)
+    x, y = _profile(1.0 / ANISOTROPY_001_OVER_100, seed=2)
+    shared = {"shared_seed": 7, "traverse_seed": 7}
+    a = fit_boundary(x, y, element="FeMg", mineral="olivine", temperature_c=T_C, fo2_pa=FO2, boundary_um=40.0,
+                     draws=300, noise_refits=10, value_sd=0.03, seed=1, budget=shared)
+    b = fit_boundary(x, y, element="FeMg", mineral="olivine", temperature_c=T_C, fo2_pa=FO2, boundary_um=40.0,
+                     draws=300, noise_refits=10, value_sd=0.03, seed=2, budget=shared)
+    ratio = np.log10(a.time_draws_days / b.time_draws_days)
+    assert np.std(ratio) < 0.5 * a.uncertainty_budget["orientation"]

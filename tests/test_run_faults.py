@@ -350,4 +350,26 @@ def test_closed_stdout_is_one_line(tmp_path):
     finally:
         os.close(write)
     assert proc.returncode == 2, proc.stderr
-    assert proc.stderr.count("\n") == 1 and "standard output is closed" in proc.stderr
+    assert proc.stderr.count("\n") == 1 and "standard output was closed" in proc.stderr
+
+
+@pytest.mark.parametrize("code, expected", [(errno.ENOSPC, "no space left"), (errno.EROFS, "read-only"),
+                                            (errno.EACCES, "permission denied")])
+def test_single_command_write_fault_is_one_line(tmp_path, monkeypatch, capsys, code, expected):
+    """Simulated full disk, read-only file system and refused permission while `zones` writes its JSON."""
+    import zoneprofile._output as output
+    from zoneprofile.cli import main
+
+    x = np.linspace(0, 200, 60)
+    path = tmp_path / "p.csv"
+    pd.DataFrame({"distance_um": x, "An": np.where(x < 100, 70.0, 50.0)}).to_csv(path, index=False)
+    target = tmp_path / "z.json"
+
+    def failing(p, data):
+        raise OSError(code, os.strerror(code), str(p))
+
+    monkeypatch.setattr(output, "write_bytes", failing)
+    assert main(["zones", str(path), "-o", str(target)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and expected in err and str(target.parent) in err and "internal error" not in err
+    assert not target.exists()

@@ -35,6 +35,12 @@ def test_real_summary_rows_are_skipped_and_counted(tmp_path):
     assert any("skipped 3 of 15 rows below the header (3 summary)" in n for n in tr.notes)
 
 
+def test_summary_word_in_the_comment_of_an_unlabelled_row(tmp_path):
+    rows = plag_rows() + [",,,52.00,30.00,0.42,,12.50,4.40,0.10,99.42,Average"]
+    tr = read_traverse(plag_table(tmp_path, rows=rows))
+    assert len(tr.table) == 12 and any("1 summary" in n for n in tr.notes)
+
+
 def test_footer_rows_are_counted(tmp_path):
     rows = plag_rows() + ["Operator: invented,,,,,,,,,,,", "Session end,,,,,,,,,,,"]
     tr = read_traverse(plag_table(tmp_path, rows=rows))

@@ -325,3 +325,47 @@ def test_shared_work_between_passes_gives_the_same_steps():
     assert [s.to_dict() for s in shared[2]] == [s.to_dict() for s in alone[1]]  # copies: callers cannot spoil it
     with pytest.raises(ValueError, match="another profile"):
         detect_steps(x, y + 1.0, sigma, reuse=reuse)
+
+
+def test_grid_segmentation_is_ruptures_optimum_on_every_gap():
+    # independent reference: ruptures' exact kernel change-point search with the linear kernel (l2 cost)
+    import ruptures as rpt
+
+    from zoneprofile.zoning.steps import segment_on_grid
+
+    for seed, n in [(0, 400), (1, 1201), (2, 2000)]:
+        rng = np.random.default_rng(seed)
+        idx = np.arange(n)
+        y = 60 + 10 * (idx > 0.3 * n) - 8 * (idx > 0.7 * n) + 3 * (idx > 0.5 * n) + rng.normal(0, 0.5, n)
+        pen = 0.25 * np.log(n)
+        ref = [int(b) for b in rpt.KernelCPD(kernel="linear", min_size=2).fit(y).predict(pen=pen)[:-1]]
+        assert segment_on_grid(y, pen, grid=1) == ref
+
+
+def test_long_profiles_place_steps_on_the_exact_gap():
+    # above CANDIDATE_EXACT_MAX points the candidates sit on every 5th gap; the local tests over gaps
+    # k-2 ... k+2 must still put each step on its true gap, including gaps between grid gaps
+    from zoneprofile.zoning.steps import CANDIDATE_EXACT_MAX
+
+    n = CANDIDATE_EXACT_MAX + 5003
+    x = np.arange(n) * 0.5
+    rng = np.random.default_rng(3)
+    cuts = [7001, 16003]  # neither a multiple of 5
+    y = 60 + 10.0 * (np.arange(n) >= cuts[0]) - 8.0 * (np.arange(n) >= cuts[1]) + rng.normal(0, 0.5, n)
+    found = detect_steps(x, y, 0.5)
+    assert len(found) == 2
+    for step, k in zip(sorted(found, key=lambda s: s.position_um), cuts):
+        assert x[k - 1] < step.position_um < x[k]  # between the last point before and the first after
+
+
+def test_sine_statistic_in_chunks_equals_one_batch(monkeypatch):
+    from zoneprofile.zoning import oscillatory
+
+    rng = np.random.default_rng(0)
+    x = np.sort(rng.uniform(0, 300, 700))
+    r = 0.8 * np.sin(2 * np.pi * x / 12.0) + rng.normal(0, 0.5, x.size)
+    lams = np.linspace(6, 40, 17)
+    whole = oscillatory.local_sine_statistic(x, r, 0.5, lams, 2 * lams)
+    monkeypatch.setattr(oscillatory, "_BATCH_CELLS", 3 * x.size)  # three wavelengths per batch
+    parts = oscillatory.local_sine_statistic(x, r, 0.5, lams, 2 * lams)
+    assert np.array_equal(whole, parts, equal_nan=True)

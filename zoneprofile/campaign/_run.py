@@ -265,7 +265,7 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
     fmts = _figure_formats(formats)
     n = len(campaign.crystals)
     # a line at once, before hashing inputs and reading the cache (seconds for 10,000 crystals)
-    bar = Progress(n, enabled=progress, workers=1 if scheduler else workers)
+    bar = Progress(n, enabled=progress, workers=workers)
     bar.phase(f"checking the input files of {n} crystals")
     tasks = build_tasks(campaign, ship_bytes=ship, formats=fmts)
     store = ResultCache(campaign.cache_dir) if (cache and campaign.cache_dir is not None) else None

@@ -28,7 +28,6 @@ campaign file, the line and the key.
 from __future__ import annotations
 
 import difflib
-import errno
 import hashlib
 import math
 import tomllib
@@ -531,6 +530,10 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         raise InputError(message, path=shown(p))
     ctx = _Context(p, text)
     folder = p.resolve().parent
+
+    if _depth(doc) > MAX_TOML_DEPTH:
+        message = f"values nested too deep (more than {MAX_TOML_DEPTH} levels); a campaign file needs four"
+        raise InputError(message, path=p)
 
     _check_keys(ctx, doc, (), _TOP_KEYS)
     title = _text(ctx, doc.get("title", ""), ("title",))

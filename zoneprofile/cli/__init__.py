@@ -13,13 +13,12 @@ to see the traceback of an internal error.
 from __future__ import annotations
 
 import argparse
-import contextlib
 import errno
+import functools
 import importlib
 import os
 import sys
 import traceback
-from pathlib import Path
 
 from zoneprofile import __version__
 from zoneprofile._limits import apply_limits
@@ -69,7 +68,7 @@ def build_parser() -> argparse.ArgumentParser:
         )
         module.configure(p)
         apply_limits(name, p)  # shared ranges of numeric options (zoneprofile/_limits.py)
-        p.set_defaults(_run=module.run)
+        p.set_defaults(_run=_quietly(module.run))
     return parser
 
 
@@ -81,96 +80,96 @@ def main(argv=None) -> int:
         parser.print_help()
         return 2
     try:
-        with _quiet_libraries():
-            code = args._run(args)
-        sys.stdout.flush()
+        code = args._run(args)
     except InputError as exc:
         sys.stderr.write(f"zoneprofile {args.command}: {exc}\n")
-        return 2
-    except (OSError, ValueError) as exc:
-        message = environment_message(exc)
-        if message is None:
-            return _internal_error(args, exc)
-        if isinstance(exc, BrokenPipeError) or not isinstance(exc, OSError):
-            _silence_stdout()
-        sys.stderr.write(f"zoneprofile {args.command}: {message}\n")
         return 2
     except KeyboardInterrupt:
         sys.stderr.write("zoneprofile: interrupted\n")
         return 130
+    except BrokenPipeError:
+        return _closed_stdout(args.command)
+    except OSError as exc:
+        told = _environment_fault(exc)
+        if told is None:
+            return _internal_error(args.command, exc)
+        sys.stderr.write(f"zoneprofile {args.command}: {told}\n")
+        return 2
     except Exception as exc:  # an internal error: one line, traceback on request
-        return _internal_error(args, exc)
+        return _internal_error(args.command, exc)
+    try:
+        sys.stdout.flush()
+    except BrokenPipeError:
+        return _closed_stdout(args.command)
     return int(code or 0)
 
 
-def _internal_error(args, exc) -> int:
+def _internal_error(command, exc) -> int:
     if os.environ.get("ZONEPROFILE_DEBUG"):
         traceback.print_exception(exc)
     text = " ".join(str(exc).split()) or type(exc).__name__
     sys.stderr.write(
-        f"zoneprofile {args.command}: internal error: {type(exc).__name__}: {text} "
+        f"zoneprofile {command}: internal error: {type(exc).__name__}: {text} "
         "(set ZONEPROFILE_DEBUG=1 for details and please report it)\n"
     )
     return 1
 
 
-_DENIED = {errno.EACCES, errno.EPERM, errno.EROFS}
-_FULL = {errno.ENOSPC, errno.EDQUOT, errno.EFBIG}
-
-
-def environment_message(exc) -> str | None:
-    """One plain line for a fault of the surroundings (closed output stream,
-    read-only folder, full disk), or None when ``exc`` is not one."""
-    if isinstance(exc, BrokenPipeError) or (isinstance(exc, OSError) and exc.errno == errno.EPIPE):
-        return "standard output is closed (the program reading it has exited); output files, if any, are complete"
-    if not isinstance(exc, OSError):  # print() to a closed sys.stdout
-        if "closed file" in str(exc):
-            return "standard output is closed; output files, if any, are complete"
-        return None
-    path = exc.filename2 or exc.filename
-    where = ""
-    if path:
-        p = Path(os.fsdecode(path))
-        # a temporary file of an atomic write: name the folder the user chose
-        folder = p.parent if p.name.startswith(".") or not p.exists() or p.is_file() else p
-        where = f" in the folder {folder}"
-    if exc.errno in _DENIED:
-        kind = "read-only file system" if exc.errno == errno.EROFS else "permission denied"
-        return f"cannot write{where}: {kind}; choose another output folder or fix its permissions"
-    if exc.errno in _FULL:
-        return f"no space left on the device{where}; free some space or choose another output folder"
-    return None
-
-
-def _silence_stdout() -> None:
-    """After a closed pipe, point stdout at /dev/null so the interpreter's final flush stays quiet."""
-    try:
+def _closed_stdout(command) -> int:
+    """Standard output was closed by the reader (``zoneprofile zones ... | head``): one line, exit 2."""
+    try:  # further writes (and the interpreter's final flush) go nowhere instead of raising again
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
-        os.close(devnull)
-    except (OSError, ValueError, AttributeError):  # not a real file (a test capture): nothing to silence
+    except (OSError, ValueError):
         pass
+    sys.stderr.write(f"zoneprofile {command}: standard output was closed before the output was written; "
+                     "write to a file with --out instead\n")
+    return 2
 
 
-@contextlib.contextmanager
-def _quiet_libraries():
-    """Keep library chatter (numpy RuntimeWarnings, tifffile log lines) off stderr:
-    the command's own notes and its one-line refusals are what the user reads."""
-    import logging
-    import warnings
+def _environment_fault(exc: OSError) -> str | None:
+    """One line for a fault of the machine (read-only, full disk, permission), or None."""
+    reason = _ENVIRONMENT_ERRNOS.get(exc.errno)
+    if reason is None:
+        return None
+    where = exc.filename if exc.filename is not None else "an output file"
+    return f"{where}: cannot write: {reason}; free space or choose a writable place for the output"
 
-    logger = logging.getLogger("tifffile")
-    saved = logger.level, logger.propagate
-    logger.setLevel(logging.CRITICAL + 1)
-    logger.propagate = False
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            warnings.filterwarnings("ignore", module="tifffile")
-            yield
-    finally:
-        logger.setLevel(saved[0])
-        logger.propagate = saved[1]
+
+#: errno values that are the machine's fault, not the program's: told as one line, exit code 2.
+_ENVIRONMENT_ERRNOS = {
+    errno.ENOSPC: "no space left on the device",
+    errno.EROFS: "the file system is read-only",
+    errno.EACCES: "permission denied",
+    errno.EPERM: "operation not permitted",
+    getattr(errno, "EDQUOT", -1): "disk quota exceeded",
+    errno.EIO: "input/output error on the device",
+}
+
+
+def _quietly(run):
+    """``run`` with library chatter (numpy RuntimeWarnings, tifffile log lines) kept off
+    stderr: the command's own notes and its one-line refusals are what the user reads."""
+
+    @functools.wraps(run)
+    def quiet(args):
+        import logging
+        import warnings
+
+        logger = logging.getLogger("tifffile")
+        saved = logger.level, logger.propagate
+        logger.setLevel(logging.CRITICAL + 1)
+        logger.propagate = False
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                warnings.filterwarnings("ignore", module="tifffile")
+                return run(args)
+        finally:
+            logger.setLevel(saved[0])
+            logger.propagate = saved[1]
+
+    return quiet
 
 
 if __name__ == "__main__":  # pragma: no cover

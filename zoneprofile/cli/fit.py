@@ -255,8 +255,27 @@ def run(args):
 
     if plot is None:
         _import_lmfit_lean()
+    from zoneprofile.cli._fit_inputs import blank_note, value_source
+
     header = _header(profile_path)
-    col = _value_column(header, element, mineral, profile_path)
+    ppm_col = None
+    factor = None
+    input_notes = []
+    try:
+        col = _value_column(header, element, mineral, profile_path)
+    except InputError as exc:
+        # no ppm column: a microprobe table may give the oxide in wt% instead
+        from zoneprofile.diffusion.fitting import ELEMENT_COLUMNS
+
+        ppm_col = ELEMENT_COLUMNS.get((element, mineral))
+        source, factor, note = value_source(header, element, ppm_col) if ppm_col else (None, None, None)
+        if factor is None:
+            if ppm_col and element in ("Mg", "Sr", "Ba"):
+                raise InputError(f"{exc.message}; a column of the oxide in wt% ({element}O) is converted too",
+                                 path=profile_path) from None
+            raise
+        col = source
+        input_notes.append(note)
     needs_an = mineral == "plagioclase" and element in ("Mg", "Sr", "Ba")
     optional = [f"{col}_sd"]
     if args.an is not None:
@@ -269,7 +288,12 @@ def run(args):
                 f"no 'An' column: {element} in plagioclase needs An along the profile; add an An column, "
                 "give --an-from TABLE, or --an MOL if the crystal is unzoned in An", path=profile_path)
         optional.append("An")
-    frame = read_profile(profile_path, columns=(col,), optional=optional, include_flagged=args.include_flagged)
+    frame = read_profile(profile_path, columns=(col,), optional=optional, include_flagged=args.include_flagged,
+                         allow_blank=(col,))
+    blank = ~np.isfinite(frame[col].to_numpy(float))
+    if blank.any():
+        input_notes.append(blank_note(int(blank.sum()), col))
+        frame = frame[~blank].reset_index(drop=True)
     if col == "X_Fe":
         _check_column(frame, col, profile_path, low=0.0, high=1.0, what="X_Fe")
         values = 100.0 * (1.0 - frame[col].to_numpy(float))
@@ -277,6 +301,8 @@ def run(args):
         values = _check_column(frame, col, profile_path, low=0.0, high=100.0, what="Fo (mol%)")
     else:
         values = _check_column(frame, col, profile_path, what="concentration")
+    if factor is not None:
+        values = values * factor
     distance = frame["distance_um"].to_numpy(float)
     value_sd = None
     if f"{col}_sd" in frame and np.all(np.isfinite(frame[f"{col}_sd"].to_numpy(float))):
@@ -287,6 +313,8 @@ def run(args):
                              row=int(frame["_row"].iloc[k]), column=f"{col}_sd")
         if col == "X_Fe":
             value_sd = 100.0 * value_sd
+        if factor is not None:
+            value_sd = value_sd * factor
     an = an_x = None
     an_beam = args.an_beam_um
     an_source = None
@@ -342,8 +370,9 @@ def run(args):
                 obliquity_deg=args.obliquity_deg, obliquity_sd_deg=args.obliquity_sd_deg, dip_deg=args.dip_deg,
                 value_sd=value_sd, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa,
                 direction=args.direction, rim=args.rim, geometry=args.geometry, radius_um=args.radius_um,
-                path=path_obj, value_name=col if col != "X_Fe" else "Fo", budget=_budget_options(args),
+                path=path_obj, value_name=ppm_col or (col if col != "X_Fe" else "Fo"), budget=_budget_options(args),
             )
+            result.warnings = input_notes + result.warnings
         except InputError as exc:
             if exc.path is None:
                 raise InputError(exc.message, path=profile_path, row=exc.row, column=exc.column,

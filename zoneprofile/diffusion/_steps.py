@@ -51,41 +51,6 @@ def find_boundaries(distance_um, value, *, count=1, side_points=3):
     return sorted(out)
 
 
-def _other_steps(x, y, b0, min_step, *, side_points=3):
-    """Positions of significant steps other than the one at ``b0``.
-
-    A step is significant when its size (difference of the means of
-    ``side_points`` points on either side) exceeds both ``min_step`` and four
-    times the point-to-point scatter, and at least a quarter of the largest step.
-    """
-    x = np.asarray(x, float)
-    y = np.asarray(y, float)
-    if x.size < 2 * side_points + 2:
-        return []
-    noise = _noise_sd(y)
-    cands = find_boundaries(x, y, count=8, side_points=side_points)
-    sizes = []
-    for c in cands:
-        lo, hi = _side_means(x, y, c, side_points)
-        sizes.append(abs(hi - lo))
-    if not sizes:
-        return []
-    biggest = max(sizes)
-    spacing = float(np.median(np.diff(x)))
-    tol = max(3.0 * noise, 0.1 * biggest)
-    out = []
-    for c, size in zip(cands, sizes):
-        if size < max(min_step, 4.0 * noise, 0.25 * biggest) or abs(c - b0) <= 3 * spacing:
-            continue
-        # a separate zone boundary has a plateau between it and b0 (three points
-        # within the noise); points on the flank of one diffused step do not
-        between = y[(x > min(b0, c)) & (x < max(b0, c))]
-        runs = [np.ptp(between[i:i + 3]) for i in range(max(between.size - 2, 0))]
-        if runs and min(runs) <= tol:
-            out.append(float(c))
-    return out
-
-
 def _running_mean(y, k):
     """Centred running mean over ``k`` points (shorter at the ends)."""
     y = np.asarray(y, float)

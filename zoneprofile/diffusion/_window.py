@@ -11,9 +11,10 @@ decides whether the boundary could be dated alone. The rules (written out in
 - **Spread of a step.** A diffused step seen through a Gaussian spot is, to
   first order, an error function of sd ``s = √(2·D·t + σ_beam²)`` (Crank 1975,
   eq. 2.14, convolved with the spot). Before a fit, ``s`` of every step is
-  measured by fitting an error function to the element's own points
-  (:func:`erf_step`); after the fit, ``s`` of the dated boundary is computed
-  from the fitted D·t and the spot.
+  measured by fitting error functions to the element's own points
+  (:func:`step_model`); for a trace element in plagioclase each neighbour is
+  fitted alone instead. After the fit, ``s`` of the dated boundary is
+  computed from the fitted D·t and the spot.
 - **Diffused zone.** ``|x − b| < Z·s`` with ``Z = 2.5``: 99.4 % of the step's
   change lies inside (Φ(2.5) = 0.9938), so beyond it the profile is a plateau
   to 0.6 % of the step, below the 1–2 % precision of a good analysis.
@@ -112,30 +113,6 @@ def _fit_steps(x, y, positions, spreads, b_bounds, s_bounds, factors=(0.5, 1.0, 
     return best
 
 
-def erf_step(x, y, b_guess, *, half_range_um=None):
-    """Apparent position, spread s (µm), plateau and size of one step near ``b_guess``.
-
-    ``half_range_um``: how far the position may move (default: the data range).
-    Returns a dict or None when the fit fails.
-    """
-    x = np.asarray(x, float)
-    y = np.asarray(y, float)
-    if x.size < 6:
-        return None
-    spacing = float(np.median(np.diff(x)))
-    span = float(x[-1] - x[0])
-    h = span if half_range_um is None else float(half_range_um)
-    b_lo, b_hi = max(b_guess - h, x[0]), min(b_guess + h, x[-1])
-    if b_hi <= b_lo:
-        return None
-    out = _fit_steps(x, y, [b_guess], [2.0 * spacing], [(b_lo, b_hi)], [(0.05 * spacing, 2.0 * span)])
-    if out is None:
-        return None
-    b, s, a, d, chi2, _ = out
-    return {"position_um": float(b[0]), "spread_um": float(s[0]), "plateau": a, "size": float(d[0]),
-            "chi2": chi2}
-
-
 #: An precision floor (mol%, 1 sd) of a microprobe analysis, common practice
 AN_NOISE_FLOOR = 0.3
 #: relative precision floor of a value (1 sd), for noise-free (model) data: common practice
@@ -159,8 +136,8 @@ def neighbour_steps(x, y, b0, *, an_x=None, an=None, given=None, noise=None, max
     there) or else in the element: the profile is modelled as a plateau plus
     one error-function step per known step (each with its own position, spread
     and size); the largest step left in the residuals, over the whole profile
-    and again between the rim and ``b0`` alone (a small young step near the rim
-    is easily outshone), is added when it lowers χ² by more than
+    and again between the rim and the outermost known step alone (a small young
+    step near the rim is easily outshone), is added when it lowers χ² by more than
     :data:`SECOND_STEP_DCHI2` noise variances and is larger than three noise sd
     (and the An ``min_step`` of 1 mol%, and as sharp as An steps are). A point
     on the flank of one wide step is explained by that step's own spread and is
@@ -202,26 +179,36 @@ def neighbour_steps(x, y, b0, *, an_x=None, an=None, given=None, noise=None, max
     # own: zoning may list one step twice (in An and in the element, a few µm apart)
     near = 4.0 * max(t_spacing, float(np.median(np.diff(x))))
     found = [(p, "given") for p in given if abs(p - b0) > near]
-    inside = [m for m in [b0] + [p for p, _ in found] if tx[0] < m < tx[-1]]
+    inside = sorted(m for m in [b0] + [p for p, _ in found] if tx[0] < m < tx[-1])
     if tx.size < 3 * len(inside) + 8:
         return sorted(found), None
+    near_given = [p for p in given if abs(p - b0) <= near and tx[0] < p < tx[-1]]
+    # the search depends only on the set of known steps, so the fits of every boundary of one
+    # traverse (and the quick fits of their neighbours) share it
+    key = (_digest(tx, ty), tuple(round(m, 6) for m in inside), tuple(round(p, 6) for p in near_given),
+           source, round(t_noise, 12), max_new)
+    if key in _SEARCHES:
+        added, model = _SEARCHES[key]
+        return sorted(found + added), model
     current = fit(inside)
     if current is None:
         return sorted(found), None
     remember(inside, current)
-    for p in [p for p in given if abs(p - b0) <= near and tx[0] < p < tx[-1]]:
+    added = []
+    for p in near_given:
         trial = fit(inside, p)
         if trial is not None and (current[4] - trial[4]) / t_noise**2 > SECOND_STEP_DCHI2 \
                 and abs(float(trial[3][-1])) > max(min_step, 3.0 * t_noise):
             inside.append(p)
-            found.append((p, "given"))
+            added.append((p, "given"))
             current = trial
             remember(inside, current)
     for _ in range(max_new):
         pos_now, spread_now = current[0], current[1]
         resid = ty - _predict(tx, current)
         cands = list(find_boundaries(tx, resid, count=3, side_points=3))
-        rim_side = tx < b0 - 2.0 * t_spacing
+        # between the rim and the outermost known step: a small young step there is easily outshone
+        rim_side = tx < min(inside) - 2.0 * t_spacing
         if np.sum(rim_side) >= 6:
             cands += list(find_boundaries(tx[rim_side], resid[rim_side], count=2, side_points=2))
         best = None
@@ -240,10 +227,33 @@ def neighbour_steps(x, y, b0, *, an_x=None, an=None, given=None, noise=None, max
         if best is None:
             break
         inside.append(best[0])
-        found.append((best[0], source))
+        added.append((best[0], source))
         current = best[1]
         remember(inside, current)
-    return sorted(found), {"marks": inside, "fit": current, "noise": t_noise, "track": source}
+    model = {"marks": inside, "fit": current, "noise": t_noise, "track": source}
+    _remember(_SEARCHES, key, (added, model))
+    return sorted(found + added), model
+
+
+#: recent step searches and step models, by data and set of known steps (one traverse's fits share them)
+_SEARCHES: dict = {}
+_MODELS: dict = {}
+_CACHE_SIZE = 64
+
+
+def _digest(*arrays):
+    import hashlib
+
+    h = hashlib.blake2b(digest_size=16)
+    for a in arrays:
+        h.update(np.ascontiguousarray(a, float).tobytes())
+    return h.hexdigest()
+
+
+def _remember(cache, key, value):
+    if len(cache) >= _CACHE_SIZE:
+        cache.pop(next(iter(cache)))
+    cache[key] = value
 
 
 def _predict(x, fitted):
@@ -266,19 +276,24 @@ def step_model(x, y, b0, steps, noise=None):
     spacing = float(np.median(np.diff(x)))
     span = float(x[-1] - x[0])
     marks = [b0] + [p for p, _ in steps]
-    inside = [i for i, m in enumerate(marks) if x[0] < m < x[-1]]
-    fitted = None
-    if inside and x.size >= 3 * len(inside) + 8:
-        pos = [marks[i] for i in inside]
-        fitted = _fit_steps(x, y, pos, [2.0 * spacing] * len(pos),
-                            [(max(m - 3 * spacing, x[0]), min(m + 3 * spacing, x[-1])) for m in pos],
-                            [(0.05 * spacing, 2.0 * span)] * len(pos))
+    pos = sorted(m for m in marks if x[0] < m < x[-1])
+    key = (_digest(x, y), tuple(round(m, 6) for m in pos), round(noise, 12))
+    by_mark = _MODELS.get(key)
+    if by_mark is None:
+        by_mark = {}
+        if pos and x.size >= 3 * len(pos) + 8:
+            fitted = _fit_steps(x, y, pos, [2.0 * spacing] * len(pos),
+                                [(max(m - 3 * spacing, x[0]), min(m + 3 * spacing, x[-1])) for m in pos],
+                                [(0.05 * spacing, 2.0 * span)] * len(pos))
+            if fitted is not None:
+                by_mark = {round(m, 6): (float(fitted[1][j]), float(fitted[3][j])) for j, m in enumerate(pos)}
+        _remember(_MODELS, key, by_mark)
     spread = {i: 0.0 for i in range(len(marks))}
     size = {i: 0.0 for i in range(len(marks))}
-    if fitted is not None:
-        for j, i in enumerate(inside):
-            if abs(float(fitted[3][j])) > 3.0 * noise:
-                spread[i], size[i] = float(fitted[1][j]), float(fitted[3][j])
+    for i, m in enumerate(marks):
+        sp, sz = by_mark.get(round(m, 6), (0.0, 0.0))
+        if abs(sz) > 3.0 * noise:
+            spread[i], size[i] = sp, sz
     own = {"spread_um": spread[0], "size": size[0]}
     neighbours = [{"position_um": float(marks[i]), "source": steps[i - 1][1], "spread_um": spread[i],
                    "size": size[i], "side": "rimward" if marks[i] < b0 else "coreward"}

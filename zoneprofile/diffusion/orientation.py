@@ -101,12 +101,17 @@ def parse_direction(value) -> Orientation:
     return Orientation(angles, ",".join(f"{a:g}" for a in angles))
 
 
-def apply(result, orientation: Orientation, anisotropy: float, seed) -> None:
+#: seed of the orientation draws: one fixed stream, so draw i has the same orientation in every boundary
+#: of a traverse (one crystal has one orientation) and intervals between its boundaries stay paired
+ORIENTATION_STREAM = 0x01BE7
+
+
+def apply(result, orientation: Orientation, anisotropy: float) -> None:
     """Divide the time draws and statements of an [001] fit by f (drawn when unknown); budget term 'orientation'."""
     from zoneprofile.diffusion.uncertainty import PERCENTILES
 
     draws = np.asarray(result.time_draws_days, float)
-    rng = np.random.default_rng([int(seed) & 0xFFFFFFFF, 0x0_1BE7])
+    rng = np.random.default_rng(ORIENTATION_STREAM)
     f = orientation.factor_draws(anisotropy, max(draws.size, 1), rng)
     td = result.time_days
     f_mid = float(np.median(f))

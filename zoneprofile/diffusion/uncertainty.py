@@ -207,8 +207,9 @@ def _noise_offsets(ctx, rng):
             return _projected_fit(model, y_stars, weights, best, lower, upper, vary)[0]
 
         thetas = round_of(n_refits)
-        # the first round counts as the doubling of its own first half
-        stable = n_refits >= 20 and _refits_stable(thetas[: n_refits // 2, 0], thetas[:, 0])
+        # a first round of 40 or more counts as the doubling of its own first half (fewer than 20
+        # refits say too little of a 2.5th percentile to call it stable)
+        stable = n_refits >= 40 and _refits_stable(thetas[: n_refits // 2, 0], thetas[:, 0])
         while not stable and thetas.shape[0] < MAX_NOISE_REFITS:
             more = np.vstack([thetas, round_of(min(thetas.shape[0], MAX_NOISE_REFITS - thetas.shape[0]))])
             stable = _refits_stable(thetas[:, 0], more[:, 0])

@@ -312,7 +312,8 @@ def _skip_non_analyses(frame, header, names, notes) -> tuple[np.ndarray, dict[in
     reasons: dict[int, str] = {}
     cells_by_row = frame[header].astype(object).to_numpy() if header else np.empty((len(frame), 0), dtype=object)
     by_name = {n: j for j, n in names.items()}
-    # the label of a row is its point label, else its first cell; a comment never makes a summary row
+    # the label of a row is its point label (else its first cell); a comment counts only
+    # where that label is blank
     label_j = by_name.get("point", 0)
     position_idx = [by_name[n] for n in ("x", "y", "distance") if n in by_name]
     oxide_idx = [j for j, n in names.items() if n in OXIDES]
@@ -337,9 +338,11 @@ def _skip_non_analyses(frame, header, names, notes) -> tuple[np.ndarray, dict[in
             reasons[int(line_no[k])] = "repeated header"
             notes.append(f"row {int(line_no[k])} skipped: the header repeated")
             continue
-        label = str(row[label_j]).strip().lower().rstrip(":") if len(row) > label_j else ""
-        if label in _SUMMARY_LABELS:
-            summary[k], word[k] = True, row[label_j]
+        label = str(row[label_j]).strip() if len(row) > label_j else ""
+        if not label and "comment" in by_name:  # no label: a summary word may stand in the comment
+            label = str(row[by_name["comment"]]).strip()
+        if label.lower().rstrip(":") in _SUMMARY_LABELS:
+            summary[k], word[k] = True, label
     # a summary row has no stage position of its own, and an ambiguous word
     # ('N', 'max') counts only in the trailing block of summary rows
     trailing = np.zeros(len(frame), dtype=bool)

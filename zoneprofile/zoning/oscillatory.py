@@ -75,6 +75,23 @@ def local_sine_statistic(distance_um, residual, noise_sd, wavelength_um, half_wi
     single = np.ndim(wavelength_um) == 0
     lams = np.atleast_1d(np.asarray(wavelength_um, dtype=float))
     halves = np.broadcast_to(np.asarray(half_window_um, dtype=float), lams.shape)
+    # the batch holds ~60 floats per point and wavelength: wavelengths go in chunks of at most
+    # _BATCH_CELLS points x wavelengths, so memory stays linear in the points (rows are independent,
+    # so the result is the same as one batch)
+    rows = max(1, _BATCH_CELLS // max(x.size, 1))
+    if lams.size > rows:
+        out = np.concatenate([_sine_batch(x, y, noise_sd, lams[k:k + rows], halves[k:k + rows], min_points)
+                              for k in range(0, lams.size, rows)])
+    else:
+        out = _sine_batch(x, y, noise_sd, lams, halves, min_points)
+    return out[0] if single else out
+
+
+#: Points x wavelengths computed in one batch of :func:`local_sine_statistic` (about 0.5 KB each).
+_BATCH_CELLS = 200_000
+
+
+def _sine_batch(x, y, noise_sd, lams, halves, min_points):
     n = x.size
     n_l = lams.size
     w = 2.0 * np.pi / lams
@@ -112,7 +129,7 @@ def local_sine_statistic(distance_um, residual, noise_sd, wavelength_um, half_wi
         # RSS = yy - b·coef for least squares; the difference is the explained part
         gain = np.einsum("ij,ij->i", fit4, b4) - np.einsum("ij,ij->i", fit2, b2)
         out[ok] = np.where(good, gain / noise_sd**2, np.nan)
-    return out[0] if single else out
+    return out
 
 
 def _runs(mask):

@@ -1,0 +1,53 @@
+"""Probe data as it comes: MgO wt% instead of Mg ppm, an empty (below-detection) cell, no precision column.
+
+The conversion is checked against periodictable (an independent reference
+library of atomic weights): ppm Mg per wt% MgO = 10⁴ · M(Mg)/M(MgO) ≈ 6030.
+Run in-process with ``main([...])``.
+"""
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from zoneprofile.cli import main
+from zoneprofile.cli._fit_inputs import oxide_to_ppm_factor
+from zoneprofile.diffusion import synthetic_boundary_profile
+
+
+def test_oxide_factor_against_periodictable():
+    periodictable = pytest.importorskip("periodictable")
+    for el, ox in (("Mg", "MgO"), ("Sr", "SrO"), ("Ba", "BaO")):
+        ref = 1e4 * periodictable.elements.symbol(el).mass / periodictable.formula(ox).mass
+        assert oxide_to_ppm_factor(el) == pytest.approx(ref, rel=2e-4)  # atomic-weight tables differ in the 5th digit
+
+
+@pytest.fixture()
+def probe_table(tmp_path):
+    d, _ = synthetic_boundary_profile(seed=2, element="Mg", mineral="plagioclase", temperature_c=1000.0,
+                                      time_days=30.0, outer=900.0, inner=600.0, an_outer=72.0, an_inner=55.0,
+                                      beam_um=3.0, noise_fraction=0.02)
+    mgo = d["value"] / oxide_to_ppm_factor("Mg")
+    frame = pd.DataFrame({"distance_um": d["distance_um"], "MgO": mgo, "An": d["An"]})
+    frame["MgO"] = frame["MgO"].map(lambda v: f"{v:.5f}")
+    frame.loc[7, "MgO"] = ""  # below detection, left empty
+    path = tmp_path / "probe.csv"
+    frame.to_csv(path, index=False)
+    return path, d
+
+
+def test_fit_reads_mgo_wt_percent_and_leaves_out_an_empty_cell(probe_table, tmp_path, capsys):
+    path, d = probe_table
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--beam-um", "3", "--boundary-um", "40", "--draws", "200", "-o", str(out)])
+    assert code == 0, capsys.readouterr().err
+    fit = json.loads(out.read_text())["fits"][0]
+    warnings = " ".join(fit["warnings"])
+    assert "Mg_ppm from MgO (wt%)" in warnings
+    assert "1 point(s) with an empty MgO cell" in warnings
+    assert "estimated from the fit's residuals" in warnings
+    assert fit["n_points"] == len(d["distance_um"]) - 1
+    # the converted values are the ppm the table was made from (to the 5 decimals written)
+    assert np.max(np.abs(np.asarray(fit["points"]["value"]) - np.delete(d["value"], 7))) < 0.1

@@ -567,7 +567,11 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
             raise InputError("An distances must increase from the rim (at least 2 points)")
         if np.any((av < 0) | (av > 100)):
             raise InputError("An must lie between 0 and 100 mol%")
-        guard = 1.5 * beam_sigma_um(an_beam_um, an_beam_shape)
+        # points within 3 spot sd of a boundary see the other zone (a 10 mol% step biases a point
+        # 1.5 sd away by 0.7 mol%, 3 sd away by 0.01 mol%): a biased line makes a spurious An
+        # gradient at the boundary, which the fit takes for diffusion (docs/whole-crystal-model.md)
+        sig_an = beam_sigma_um(an_beam_um, an_beam_shape)
+        guard = (3.0 * sig_an, 2.0 * sig_an, 1.5 * sig_an)
         an_zones = AnZones(ax, av, pos, x_max, guard)
         if np.ptp(av) > 0 and ax.size >= 6:
             an_sd = max(_noise_sd(av), 0.3)

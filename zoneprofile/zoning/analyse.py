@@ -284,7 +284,7 @@ def analyse_zoning(
         bands = [b for b in bands if sum(b.start_um <= s.position_um <= b.end_um for s in steps) < 2]
 
     # a second look for a thin rim zone with zoning of its own (steps.py shares one slope across a jump)
-    rim_step = find_rim_step(x, y, sigma, steps, alpha=alpha, min_change=min_change)
+    rim_step = find_rim_step(x, y, sigma, steps, alpha=alpha, min_change=min_change, notes=warnings)
     if rim_step is not None:
         steps = sorted(steps + [rim_step], key=lambda s: s.position_um)
 

@@ -44,7 +44,7 @@ def _fit_at(t, y, on_rim, jump):
     return ols(np.column_stack(cols), y)
 
 
-def find_rim_step(x, y, noise_sd, steps, *, alpha=0.01, min_change=None):
+def find_rim_step(x, y, noise_sd, steps, *, alpha=0.01, min_change=None, notes=None, alpha_note=0.2):
     """The step between the rim and the first known step, or None.
 
     Parameters
@@ -60,6 +60,10 @@ def find_rim_step(x, y, noise_sd, steps, *, alpha=0.01, min_change=None):
         False-alarm rate of the whole search.
     min_change : float, optional
         Smallest change reported (default 3 × noise).
+    notes : list, optional
+        When given, a plain warning is appended for a jump that passes the looser
+        ``alpha_note`` but not ``alpha`` (a possible step, not accepted: said, not omitted
+        silently).
 
     Returns
     -------
@@ -101,6 +105,11 @@ def find_rim_step(x, y, noise_sd, steps, *, alpha=0.01, min_change=None):
     stat = (rss_null - rss) / s2
     delta = float(coef[3])
     if not np.isfinite(stat) or stat < chi2.isf(alpha / len(gaps), 1) or abs(delta) < min_change:
+        if notes is not None and np.isfinite(stat) and stat >= chi2.isf(alpha_note / len(gaps), 1) \
+                and abs(delta) >= min_change:
+            notes.append(f"possible step at {xb:.1f} µm below the rim ({delta:+.2g}) not accepted: its evidence "
+                         f"(Δχ² {stat:.1f}) is below the {chi2.isf(alpha / len(gaps), 1):.1f} needed; if it is real, "
+                         "the next boundary inward is dated too old (list it with boundaries = [...] to date it)")
         return None
     se = float(np.sqrt(s2 * cov[3, 3]))
     gap = float(xs[j] - xs[j - 1])

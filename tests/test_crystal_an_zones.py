@@ -95,5 +95,10 @@ def test_forward_model_agrees_with_the_independent_one_at_the_true_parameters():
         noise = {"Mg": 0.025, "Sr": 0.015}[em.element]
         # two forward models on different grids (0.25 µm against ~0.9 µm cells) agree to a small part of
         # the noise; 0.3 sd is where a systematic misfit over a few points starts to pass for a width
-        # (before the zone lines reached their boundaries: Mg 0.33 sd, Sr 0.52 sd)
+        # (before the zone lines reached their boundaries and the rim: Mg 0.33 sd, Sr 0.52 sd)
         assert rel.max() <= 0.3 * noise, (em.element, rel.max() / noise)
+        # with the rim as a zone edge too (a spot at the rim sees partly outside the crystal), over the
+        # boundaries (away from the closed end, which the model cannot place: the crystal's centre is
+        # 80 µm beyond the traverse) the two models agree to 0.1 noise sd (before: Sr 0.25)
+        near = em.x_um < depths[0] + 20.0
+        assert rel[near].max() <= 0.1 * noise, (em.element, rel[near].max() / noise)

@@ -105,7 +105,9 @@ class AnZones:
         pos = np.asarray(positions_um, float)
         # the widest guard that leaves a line's worth of points (4), else the narrowest leaving one
         guards = sorted(np.atleast_1d(np.asarray(guard_um, float)).tolist(), reverse=True)
-        edges = np.concatenate([[np.inf if end_um is None else max(end_um, ax.max()) + 1.0], pos, [-np.inf]])
+        # the rim (distance 0) is an edge too: a spot there sees partly outside the crystal
+        rim = min(0.0, float(ax.min())) - 1e-9
+        edges = np.concatenate([[np.inf if end_um is None else max(end_um, ax.max()) + 1.0], pos, [rim]])
         # zone z lies between edges[z + 1] (rimward) and edges[z] (coreward); zone 0 the core
         self.zones = []
         self.lines = []

@@ -394,7 +394,9 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     out.append(f'<section id="provenance"><h2>Provenance</h2>{_provenance_section(provenance)}</section>')
     out.append(f'<section id="cite"><h2>How to cite</h2><p>{_e(citation_text(provenance))}</p>'
                "<p>Keep <code>results.json</code> and the <code>tables/</code> folder with the paper's "
-               "supplement: they hold every number shown here and the checksums of the inputs.</p>"
+               "supplement: they hold every number shown here and the checksums of the inputs. "
+               '<a href="supplement.xlsx">supplement.xlsx</a> holds the same tables as one workbook, '
+               "rounded to the digits each uncertainty supports, with units in the header row.</p>"
                f'<div class="caution"><p>{_e(CAUTION)}</p></div></section>')
     out.append("</main></body></html>")
     return "\n".join(out)

@@ -10,7 +10,7 @@ import pytest
 from zoneprofile.chronology import population_summary
 from zoneprofile.report import write_outputs
 from zoneprofile.report._sample import sample_provenance, sample_records
-from zoneprofile.report.timetext import time_range_text, time_statement, time_title
+from zoneprofile.report.timetext import resolved_text, time_range_text, time_statement, time_title
 
 UPPER = {"best": None, "median": None, "p2_5": None, "p16": None, "p84": None, "p97_5": None,
          "upper_bound": 2.4, "lower_bound": None, "statement": "upper_bound"}
@@ -29,6 +29,8 @@ def test_statements():
     assert time_statement(date) == "20.1 d"
     assert time_range_text(date) == "9.1 – 41.4 d" and time_range_text(UPPER, False) == "—"
     assert time_statement({"statement": "none"}, False) == "not bounded"
+    assert resolved_text(date) == "yes" and resolved_text(lower, False) == "no: lower bound"
+    assert resolved_text({"statement": "none"}, False) == "no: not bounded"
     # an older record without "statement": the bound is found from the keys
     assert time_statement({"median": None, "upper_bound": 2.4}, False) == "< 2.4 d"
     assert time_title("Mg", 31.9, UPPER, False) == "Mg at 32 µm: < 2.4 d\nnot resolved: upper bound only"
@@ -59,7 +61,7 @@ def test_report_tables_show_bounds_and_fit_the_page(tmp_path, unresolved_record)
     pop = population_summary(recs, n_bootstrap=0)
     write_outputs(recs, pop, sample_provenance(recs), tmp_path, formats=("png",))
     page = (tmp_path / "report.html").read_text()
-    assert "<td>&lt; 2.4 d</td>" in page
+    assert "<td>&lt; 2.4 d</td>" in page and "<td>no: upper bound</td>" in page
     widths = [len(re.findall(r"<th>", t.split("</thead>")[0])) for t in re.findall(r"<table>.*?</table>", page, re.S)]
     assert widths and max(widths) <= 10  # the per-crystal settings table had one column per setting (38)
     assert "Settings shared by every crystal" in page

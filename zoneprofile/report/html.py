@@ -22,7 +22,7 @@ from zoneprofile.report.provenance import (
     status_is_confirmed,
 )
 from zoneprofile.report.style import CSS
-from zoneprofile.report.timetext import time_range_text, time_statement
+from zoneprofile.report.timetext import resolved_text, time_range_text, time_statement
 
 __all__ = ["build_html", "collect_warnings"]
 
@@ -244,8 +244,7 @@ def _crystal_section(k, record, fig_png) -> str:
             rows.append([_e(_fmt_um(b.get("position_um"))), _e(b.get("kind")), _e(b.get("element")),
                          _e(b.get("law")), _time_cell(td, "best") if ok else "—", _e(time_statement(td, ok)),
                          _e(time_range_text(td, ok, "p16", "p84")), _e(time_range_text(td, ok)),
-                         "yes" if b.get("resolved", True) else "upper bound",
-                         _num(b.get("obliquity_deg"), 3)])
+                         _e(resolved_text(td, ok)), _num(b.get("obliquity_deg"), 3)])
         parts.append(_table(["boundary", "kind", "element", "law", "best", "median", "68% range", "95% range",
                              "resolved", "obliquity (°)"], rows))
     else:

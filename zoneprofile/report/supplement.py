@@ -322,22 +322,26 @@ def _cell(v):
 def workbook_bytes(sheets: dict[str, pd.DataFrame]) -> bytes:
     """The sheets as an XLSX file (bytes): bold header row with units, frozen, text cells neutralised."""
     from openpyxl import Workbook
+    from openpyxl.cell import WriteOnlyCell
     from openpyxl.styles import Font
+    from openpyxl.utils import get_column_letter
 
-    wb = Workbook()
-    wb.remove(wb.active)
     bold = Font(bold=True)
+    wb = Workbook(write_only=True)  # streamed: about half the time and memory of an ordinary workbook
     for name, frame in sheets.items():
         ws = wb.create_sheet(title=name[:31])
-        ws.append([neutralise_cell(_header(str(c))) for c in frame.columns])
-        for cell in ws[1]:
-            cell.font = bold
-        for row in frame.itertuples(index=False, name=None):
-            ws.append([_cell(v) for v in row])
         ws.freeze_panes = "A2"
         for k, col in enumerate(frame.columns, start=1):
             width = max([len(_header(str(col)))] + [len(str(v)) for v in frame[col].head(200)]) + 2
-            ws.column_dimensions[ws.cell(row=1, column=k).column_letter].width = min(width, 60)
+            ws.column_dimensions[get_column_letter(k)].width = min(width, 60)
+        header = []
+        for c in frame.columns:
+            cell = WriteOnlyCell(ws, value=neutralise_cell(_header(str(c))))
+            cell.font = bold
+            header.append(cell)
+        ws.append(header)
+        for row in frame.itertuples(index=False, name=None):
+            ws.append([_cell(v) for v in row])
     buf = io.BytesIO()
     wb.save(buf)
     return buf.getvalue()

@@ -11,7 +11,7 @@ import math
 
 from zoneprofile._units import format_days, format_days_range
 
-__all__ = ["time_statement", "time_title", "time_range_text"]
+__all__ = ["time_statement", "time_title", "time_range_text", "resolved_text"]
 
 
 def _finite(v):
@@ -72,3 +72,11 @@ def time_title(element: str, position_um: float, td: dict, resolved=True) -> str
     if st == "lower_bound":
         return f"{head}\nnot resolved: lower bound only"
     return f"{head}\nnot resolved: the data do not bound the time"
+
+
+def resolved_text(td: dict, resolved=True) -> str:
+    """The "resolved" cell: ``'yes'``, or what the data say instead (upper bound, lower bound, not bounded)."""
+    st = _statement(td or {}, resolved)
+    if resolved and st in ("date", "interval"):
+        return "yes"
+    return {"upper_bound": "no: upper bound", "lower_bound": "no: lower bound"}.get(st, "no: not bounded")

@@ -102,7 +102,7 @@ def test_workbook_opens_with_openpyxl_and_pandas_units_in_headers(built):
 
     out, _, _ = built
     wb = load_workbook(out / "supplement.xlsx")
-    assert set(wb.sheetnames) >= {*CSV_SHEETS, "analyses", "laws", "law_parameters", "settings", "provenance",
+    assert set(wb.sheetnames) >= {*CSV_SHEETS, "analyses", "event_samples", "event_probabilities", "laws", "law_parameters", "settings", "provenance",
                                   "inputs", "about"}
     sheets = pd.read_excel(out / "supplement.xlsx", sheet_name=None)
     fits = sheets["fits"]
@@ -176,3 +176,17 @@ def test_workbook_cells_are_not_formulas(built):
                     texts.append(cell.value)
                     assert not cell.value.startswith(("=", "+", "@")), (ws.title, cell.coordinate)
     assert "'=HYPERLINK(\"x\")" in texts and "'+cmd" in texts  # common practice (OWASP CSV injection)
+
+
+def test_joined_event_columns_become_plain_rows(built):
+    out, _, _ = built
+    sheets = pd.read_excel(out / "supplement.xlsx", sheet_name=None)
+    events = pd.read_csv(out / "tables" / "events.csv")
+    by_sample = sheets["event_samples"].rename(columns=_strip_unit)
+    for _, e in events.iterrows():  # "S1:3; S2:2" in the CSV, one row per sample in the workbook
+        rows = by_sample[by_sample["event"] == e["event"]]
+        assert rows["n_crystals"].sum() == e["n_crystals"]
+    probs = sheets["event_probabilities"].rename(columns=_strip_unit)
+    assert len(probs)
+    totals = probs.groupby(["sample", "crystal", "boundary"])["probability"].sum()
+    np.testing.assert_allclose(totals, 1.0, atol=0.003)  # each boundary's memberships sum to 1 (3 decimals)

@@ -260,6 +260,34 @@ def provenance_tables(provenance) -> tuple[pd.DataFrame, pd.DataFrame]:
     return pd.DataFrame(rows, columns=["item", "value"]), inputs
 
 
+def event_long_tables(population) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The joined-text columns of the event tables as plain rows.
+
+    ``by_sample`` of ``events.csv`` (``S1:3; S2:2``) becomes one row per event
+    and sample; ``probabilities`` of ``event_members.csv`` one row per boundary
+    and event.
+    """
+    samples, probs = [], []
+    block = (population or {}).get("events") or {}
+    for e in block.get("events") or []:
+        for sample, n in (e.get("by_sample") or {}).items():
+            n = n.get("n_crystals") if isinstance(n, dict) else n
+            samples.append({"scope": "population", "element": "", "event": e.get("id"), "sample": sample,
+                            "n_crystals": n})
+    for el, eb in ((population or {}).get("elements") or {}).items():
+        for e in eb.get("events") or []:
+            for sample, n in (e.get("by_sample") or {}).items():
+                n = n.get("n_crystals") if isinstance(n, dict) else n
+                samples.append({"scope": "element", "element": e.get("element") or el, "event": e.get("id"),
+                                "sample": sample, "n_crystals": n})
+    for m in block.get("members") or []:
+        for event, p in (m.get("probabilities") or {}).items():
+            probs.append({"sample": m.get("sample"), "crystal": m.get("crystal"), "boundary": m.get("boundary"),
+                          "element": m.get("element"), "event": event, "probability": p})
+    return (pd.DataFrame(samples, columns=["scope", "element", "event", "sample", "n_crystals"]),
+            pd.DataFrame(probs, columns=["sample", "crystal", "boundary", "element", "event", "probability"]))
+
+
 def _about(sheets) -> pd.DataFrame:
     rows = [{"sheet": "about", "content": "This workbook; one plain value per cell, units in the header row."},
             {"sheet": "rounding", "content": (
@@ -278,6 +306,7 @@ def supplement_sheets(records, population, provenance) -> dict[str, pd.DataFrame
 
     laws, law_params = laws_tables((provenance or {}).get("laws") or [])
     prov, inputs = provenance_tables(provenance)
+    event_samples, event_probabilities = event_long_tables(population)
     sheets = {
         "crystals": (crystals_table(records), "one row per crystal: status, reason, counts (= tables/crystals.csv)"),
         "analyses": (analyses_table(records), "every analysis point as read, with its QC flag"),
@@ -287,6 +316,10 @@ def supplement_sheets(records, population, provenance) -> dict[str, pd.DataFrame
         "events": (events_table(population), "recharge events (= tables/events.csv)"),
         "event_members": (members_table(population), "boundaries in the event model (= tables/event_members.csv)"),
         "gaps": (gaps_table(records, population), "gaps between boundaries (= tables/gaps.csv)"),
+        "event_samples": (event_samples, "crystals of each event by sample (the by_sample column, one row each)"),
+        "event_probabilities": (event_probabilities,
+                                "each boundary's probability of belonging to each event (the probabilities "
+                                "column, one row each)"),
         "laws": (laws, "diffusion laws used: status, validity range, citation"),
         "law_parameters": (law_params, "each law's parameters with their unit and sd"),
         "settings": (settings_table(provenance), "every crystal's settings as used"),

@@ -18,6 +18,7 @@ import pandas as pd
 from zoneprofile._validation import InputError, require_choice, require_positive
 from zoneprofile.io.microprobe import Analyses, read_analyses
 from zoneprofile.minerals import MINERALS, get_mineral, recalculate
+from zoneprofile._api import TraverseVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["Traverse", "read_traverse", "project_on_line", "infer_length_unit", "traverse_from_analyses"]
 
@@ -27,7 +28,7 @@ MM_STEP_THRESHOLD = 0.25
 
 
 @dataclass
-class Traverse:
+class Traverse(TraverseVocabulary):
     """Recalculated analyses along one traverse, rim first.
 
     Attributes

@@ -20,12 +20,13 @@ from zoneprofile.campaign._cache import ResultCache, task_key
 from zoneprofile.campaign._executors import Progress, execute
 from zoneprofile.campaign._pipeline import process_crystal
 from zoneprofile.campaign._schema import Campaign, load_campaign
+from zoneprofile._api import RunVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["run_campaign", "execute_campaign", "write_campaign_outputs", "RunSummary", "build_tasks"]
 
 
 @dataclass
-class RunSummary:
+class RunSummary(RunVocabulary):
     """What a campaign run did."""
 
     out_dir: Path

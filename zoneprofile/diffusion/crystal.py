@@ -48,6 +48,7 @@ from zoneprofile.diffusion._crystal_model import (
     beam_for,
     forward_basis,
 )
+from zoneprofile._api import CrystalVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["fit_crystal", "CrystalResult", "time_summary", "DELTA_CHI2_95"]
 
@@ -75,7 +76,7 @@ def time_summary(draws=None, statement="date", upper=None, lower=None):
     return out
 
 
-class CrystalResult:
+class CrystalResult(CrystalVocabulary):
     """The fitted crystal; :meth:`to_record` gives ``record["crystal_model"]``."""
 
     def __init__(self, **kw):

@@ -31,6 +31,7 @@ import numpy as np
 
 from zoneprofile._units import format_days, format_days_range
 from zoneprofile.diffusion._optimise import _least_squares, _projected_fit, _refit_projected
+from zoneprofile._api import FitVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["FitResult", "propagate", "PERCENTILES"]
 
@@ -42,7 +43,7 @@ _UNDIFFUSED_DCHI2 = 3.84
 
 
 @dataclass
-class FitResult:
+class FitResult(FitVocabulary):
     """One dated boundary. ``to_dict()`` is one entry of FIT.json ``fits[]``."""
 
     boundary_um: float

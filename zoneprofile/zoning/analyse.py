@@ -26,6 +26,7 @@ from zoneprofile.zoning.rim import find_rim_step
 from zoneprofile.zoning.species import dominant_species, feldspar_species, species_change
 from zoneprofile.zoning.steps import detect_steps
 from zoneprofile.zoning.stratigraphy import build_zones, zones_table
+from zoneprofile._api import ZoningVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["analyse_zoning", "ZoningResult", "MIN_POINTS", "RANGES"]
 
@@ -36,7 +37,7 @@ RANGES = {c: (0.0, 100.0) for c in ("An", "Ab", "Or", "Fo", "Wo", "En", "Fs", "M
 
 
 @dataclass
-class ZoningResult:
+class ZoningResult(ZoningVocabulary):
     """Everything read from one profile (distances from the rim, µm)."""
 
     column: str

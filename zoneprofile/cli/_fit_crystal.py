@@ -31,6 +31,7 @@ def run_crystal(args):
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.io.profile import read_profile
+    from zoneprofile.minerals.registry import needs_an as an_needed
 
     for name, flag in _UNSUPPORTED.items():
         if getattr(args, name, None) is not None:
@@ -73,7 +74,7 @@ def run_crystal(args):
 
     header = _header(profile_path)
     columns = {el: _value_column(header, el, mineral, profile_path) for el in elements}
-    needs_an = mineral == "plagioclase" and any(el in ("Mg", "Sr", "Ba") for el in elements)
+    needs_an = any(an_needed(el, mineral) for el in elements)
     optional = [f"{c}_sd" for c in columns.values()]
     if args.an is not None:
         require_in_range(args.an, "--an", 0.0, 100.0, unit="mol%")

@@ -200,6 +200,7 @@ def run(args):
     from zoneprofile._output import check_outputs, write_bytes, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
+    from zoneprofile.minerals.registry import needs_an as an_needed
 
     element = normalise_element(args.element)
     mineral = normalise_mineral(args.mineral)
@@ -257,7 +258,7 @@ def run(args):
         _import_lmfit_lean()
     header = _header(profile_path)
     col = _value_column(header, element, mineral, profile_path)
-    needs_an = mineral == "plagioclase" and element in ("Mg", "Sr", "Ba")
+    needs_an = an_needed(element, mineral)
     optional = [f"{col}_sd"]
     if args.an is not None:
         require_in_range(args.an, "--an", 0.0, 100.0, unit="mol%")

@@ -445,6 +445,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
     from zoneprofile.diffusion.draws import section_obliquity_deg, shared_normals
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, default_law, get_law, normalise_element, \
         normalise_mineral
+    from zoneprofile.minerals.registry import needs_an as an_needed
     from zoneprofile.diffusion.resolution import beam_sigma_um, beam_variance_um2
     from zoneprofile.diffusion._steps import _noise_sd
 
@@ -509,7 +510,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
             raise InputError(f"{el}: distances must increase from the rim")
         if np.any(y < 0):
             raise InputError(f"{el}: negative concentration {y[y < 0][0]:g}; concentrations must be >= 0")
-        coupled = mi == "plagioclase" and el in ("Mg", "Sr", "Ba")
+        coupled = an_needed(el, mi)
         needs_an = needs_an or coupled or "x_an" in law.needs
         partition_ab = None
         if coupled:

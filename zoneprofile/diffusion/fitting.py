@@ -51,22 +51,15 @@ from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for co
 from zoneprofile.diffusion import _window
 from zoneprofile.diffusion._steps import _noise_sd, _side_means, find_boundaries
 from zoneprofile.diffusion.uncertainty import propagate
+from zoneprofile.minerals.registry import REGISTRY as MINERAL_TABLE
+from zoneprofile.minerals.registry import needs_an as an_needed
 
 __all__ = ["fit_boundary", "find_boundaries", "ELEMENT_COLUMNS"]
 
 UM2_PER_M2 = 1e12
 
-#: value column read for each (element, mineral) by the command line
-ELEMENT_COLUMNS = {
-    ("Mg", "plagioclase"): "Mg_ppm",
-    ("Sr", "plagioclase"): "Sr_ppm",
-    ("Ba", "plagioclase"): "Ba_ppm",
-    ("Sr", "alkali-feldspar"): "Sr_ppm",
-    ("Ba", "alkali-feldspar"): "Ba_ppm",
-    ("FeMg", "olivine"): "Fo",
-    ("FeMg", "clinopyroxene"): "Mg_number",
-    ("Ti", "quartz"): "Ti_ppm",
-}
+#: value column read for each (element, mineral) by the command line (from zoneprofile/minerals/registry.py)
+ELEMENT_COLUMNS = {(d.element, m.law_mineral): d.column for m in MINERAL_TABLE for d in m.elements}
 
 _MIN_SIDE_POINTS = 3
 
@@ -447,7 +440,7 @@ def _fit_boundary(
         raise InputError("the profile is flat (its range is within the noise): nothing to fit")
 
     an_x = an_vals = None
-    needs_an = "x_an" in law_obj.needs or (mi == "plagioclase" and el in ("Mg", "Sr", "Ba"))
+    needs_an = "x_an" in law_obj.needs or an_needed(el, mi)
     if needs_an:
         if an is None:
             raise InputError(f"{el} in {mi} needs An (mol%) along the profile: give an An column or --an-from")

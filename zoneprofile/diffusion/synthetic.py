@@ -12,6 +12,7 @@ import numpy as np
 from scipy.integrate import trapezoid
 
 from zoneprofile._validation import InputError
+from zoneprofile.minerals.registry import needs_an as an_needed
 
 __all__ = ["simulate_boundary", "synthetic_boundary_profile"]
 
@@ -94,7 +95,7 @@ def simulate_boundary(
     length = hi_x - lo_x
     pad = 2.0 * length if pad_um is None else float(pad_um)
     grid = refined_grid(0.0, hi_x + pad, 0.0, hi_x + 0.05 * length, int(n_cells), growth=1.05)
-    needs_an = "x_an" in law_obj.needs or (mi == "plagioclase" and el in ("Mg", "Sr", "Ba"))
+    needs_an = "x_an" in law_obj.needs or an_needed(el, mi)
     coupling, x_an_cells, ab, reference = None, None, None, {}
     if needs_an:
         if an is None:

@@ -28,6 +28,7 @@ __all__ = [
     "BY_NAME",
     "lookup",
     "law_minerals",
+    "recalculated_minerals",
     "datable_elements",
     "value_column",
     "needs_an",
@@ -67,6 +68,7 @@ class MineralFacts:
     elements: tuple[Datable, ...]
     default_elements: tuple[str, ...]
     law_mineral: str  # the mineral name the diffusion laws use
+    recalculated: bool = True  # has an oxide -> formula recalculation (zoneprofile.minerals.MINERALS)
 
     def element(self, name: str) -> Datable | None:
         for d in self.elements:
@@ -118,7 +120,7 @@ REGISTRY: tuple[MineralFacts, ...] = (
     MineralFacts(
         "quartz", ("qz", "qtz"), "Ti_ppm",
         (Datable("Ti", "Ti_ppm", default_law="cherniak2007-ti-quartz"),),
-        ("Ti",), "quartz",
+        ("Ti",), "quartz", recalculated=False,
     ),
 )
 
@@ -148,6 +150,11 @@ def lookup(mineral: str) -> MineralFacts | None:
 def law_minerals() -> tuple[str, ...]:
     """The mineral names the diffusion laws use, in registry order."""
     return tuple(m.law_mineral for m in REGISTRY)
+
+
+def recalculated_minerals() -> tuple[str, ...]:
+    """The minerals with an oxide recalculation, in registry order."""
+    return tuple(m.name for m in REGISTRY if m.recalculated)
 
 
 def datable_elements() -> tuple[str, ...]:

@@ -321,7 +321,7 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
                 raise ctx.fail(w, f"an element is listed twice in {names}")
             out[key] = names
         elif key == "temperature_c":
-            out[key] = _number(ctx, value, w, low=400, high=1500, unit="°C")
+            out[key] = _limited(ctx, value, w, key)
         elif key in ("temperature_sd_c", "beam_um", "trace_beam_um"):
             out[key] = _limited(ctx, value, w, key)
         elif key in ("beam_shape", "trace_beam_shape"):

@@ -32,6 +32,7 @@ def run_crystal(args):
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.io.profile import read_profile
     from zoneprofile.minerals.registry import needs_an as an_needed
+    from zoneprofile._limits import check_limit
 
     for name, flag in _UNSUPPORTED.items():
         if getattr(args, name, None) is not None:
@@ -53,7 +54,7 @@ def run_crystal(args):
         if el in elements:
             raise InputError(f"element {el} is named twice in --element")
         elements.append(el)
-    require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
+    check_limit("temperature_c", args.temperature_c, "--temperature-c")  # zoneprofile/_limits.py
     require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
     if args.draws < 10 or args.draws > 1_000_000:
         raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")

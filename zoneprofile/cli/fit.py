@@ -201,6 +201,7 @@ def run(args):
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.minerals.registry import needs_an as an_needed
+    from zoneprofile._limits import check_limit
 
     element = normalise_element(args.element)
     mineral = normalise_mineral(args.mineral)
@@ -208,7 +209,7 @@ def run(args):
         raise InputError(f"unknown element '{args.element}'; choose one of: {', '.join(ELEMENTS)}")
     if mineral not in MINERALS:
         raise InputError(f"unknown mineral '{args.mineral}'; choose one of: {', '.join(MINERALS)}")
-    require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
+    check_limit("temperature_c", args.temperature_c, "--temperature-c")  # zoneprofile/_limits.py
     if args.temperature_sd_c is not None:
         require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
     for name in ("beam_sd_um", "growth_width_sd_um", "partition_a_sd"):

@@ -38,6 +38,7 @@ import math
 
 import numpy as np
 
+from zoneprofile._limits import check_limit
 from zoneprofile._validation import InputError
 from zoneprofile.diffusion._crystal_model import (
     SECONDS_PER_DAY,
@@ -455,8 +456,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         raise InputError(f"unknown mineral '{mineral}'; choose one of: {', '.join(MINERALS)}")
     t0 = float(temperature_c)
     t_sd = float(temperature_sd_c or 0.0)
-    if not math.isfinite(t0) or not 0 < t0 <= 1600:
-        raise InputError(f"temperature must lie between 0 and 1600 °C, got {temperature_c}")
+    check_limit("temperature_c", t0, "temperature")  # zoneprofile/_limits.py
     if not math.isfinite(t_sd) or t_sd < 0:
         raise InputError(f"temperature uncertainty must be >= 0 °C, got {temperature_sd_c}")
     if rim not in ("open", "closed"):

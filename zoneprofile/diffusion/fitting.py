@@ -36,6 +36,7 @@ import math
 
 import numpy as np
 
+from zoneprofile._limits import check_limit
 from zoneprofile._validation import InputError
 from zoneprofile.diffusion._an import _frozen_an, _tie_to_an_step
 from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for compatibility
@@ -74,9 +75,7 @@ def _check_inputs(distance_um, value, element, mineral, temperature_c):
         raise InputError(f"unknown element '{element}'; choose one of: {', '.join(ELEMENTS)}")
     if mi not in MINERALS:
         raise InputError(f"unknown mineral '{mineral}'; choose one of: {', '.join(MINERALS)}")
-    t = float(temperature_c)
-    if not math.isfinite(t) or t < 0 or t > 1600:
-        raise InputError(f"temperature must lie between 0 and 1600 °C, got {temperature_c}")
+    t = float(check_limit("temperature_c", float(temperature_c), "temperature"))  # zoneprofile/_limits.py
     x = np.asarray(distance_um, float)
     y = np.asarray(value, float)
     if x.ndim != 1 or x.shape != y.shape:
@@ -565,7 +564,7 @@ def _fit_boundary(
         an_lo, an_hi = _side_means(an_x, an_vals, b0) if np.sum(an_x < b0) and np.sum(an_x > b0) else (
             float(np.mean(an_vals)),) * 2
         reference["x_an"] = 0.5 * (an_lo + an_hi) / 100.0
-        if mi == "plagioclase" and el in ("Mg", "Sr", "Ba"):
+        if an_needed(el, mi):  # An-coupled partitioning
             from zoneprofile.diffusion.partition import partition_parameters, partition_range_warnings
 
             coupling = "an"

@@ -106,7 +106,7 @@ def simulate_boundary(
         xs = grid.faces_um[:-1, None] + sub * grid.widths_um[:, None]
         x_an_cells = trapezoid(f(xs), axis=1) / 20.0 / 100.0  # scipy's: np.trapezoid needs numpy 2
         reference["x_an"] = 0.5 * (f(np.array([boundary_um - 1e-9]))[0] + f(np.array([boundary_um + 1e-9]))[0]) / 100
-        if mi == "plagioclase" and el in ("Mg", "Sr", "Ba"):
+        if an_needed(el, mi):  # An-coupled partitioning
             from zoneprofile.diffusion.partition import partition_parameters
 
             coupling = "an"

@@ -69,6 +69,9 @@ class MineralFacts:
     default_elements: tuple[str, ...]
     law_mineral: str  # the mineral name the diffusion laws use
     recalculated: bool = True  # has an oxide -> formula recalculation (zoneprofile.minerals.MINERALS)
+    #: no melt-equivalent fingerprint: a reverse step (Fo or Mg# rising toward the rim, a more mafic
+    #: melt; Ti in quartz rising toward the rim, a hotter melt) is taken as recharge-like
+    reverse_is_recharge: bool = False
 
     def element(self, name: str) -> Datable | None:
         for d in self.elements:
@@ -109,18 +112,18 @@ REGISTRY: tuple[MineralFacts, ...] = (
     MineralFacts(
         "olivine", ("ol",), "Fo",
         (Datable("FeMg", "Fo", default_law="dohmen2007-femg-olivine"),),
-        ("FeMg",), "olivine",
+        ("FeMg",), "olivine", reverse_is_recharge=True,
     ),
     MineralFacts(
         "pyroxene", ("cpx",), "Mg_number",
         (Datable("FeMg", "Mg_number", default_law="muller2013-femg-cpx"),),
-        ("FeMg",), "clinopyroxene",
+        ("FeMg",), "clinopyroxene", reverse_is_recharge=True,
     ),
     # quartz has no major-element zoning to recalculate: its Ti (ppm) comes from a trace table
     MineralFacts(
         "quartz", ("qz", "qtz"), "Ti_ppm",
         (Datable("Ti", "Ti_ppm", default_law="cherniak2007-ti-quartz"),),
-        ("Ti",), "quartz", recalculated=False,
+        ("Ti",), "quartz", recalculated=False, reverse_is_recharge=True,
     ),
 )
 

@@ -215,3 +215,15 @@ def test_the_table_check_sees_a_table(tmp_path):
     bad.write_text('MINERALS = {"plagioclase": "An"}\n\n\ndef f(m):\n'
                    '    return m in ("plagioclase", "olivine", "quartz")\n')
     assert len(_offences(bad)) == 2
+
+
+def test_one_home_for_time_units():
+    """Seconds per day and days per year are written once, in zoneprofile/_units.py."""
+    found = []
+    for path in sorted(PACKAGE.rglob("*.py")):
+        if path.name == "_units.py" and path.parent == PACKAGE:
+            continue
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Constant) and type(node.value) in (int, float) and node.value in (86400, 365.25):
+                found.append(f"{path}:{node.lineno} writes {node.value}")
+    assert found == []

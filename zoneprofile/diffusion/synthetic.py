@@ -16,7 +16,7 @@ from zoneprofile.minerals.registry import needs_an as an_needed
 
 __all__ = ["simulate_boundary", "synthetic_boundary_profile"]
 
-SECONDS_PER_DAY = 86400.0
+from zoneprofile._units import SECONDS_PER_DAY  # noqa: E402
 
 
 def _an_function(an, distance_um):

@@ -18,6 +18,7 @@ import json
 from pathlib import Path
 
 from zoneprofile._output import to_jsonable, write_bytes, write_text
+from zoneprofile.campaign._record import valid_record  # the record layout, checked once on reading
 
 __all__ = ["RECORD_LAYOUT", "task_key", "code_fingerprint", "ResultCache"]
 
@@ -53,32 +54,6 @@ def task_key(task: dict, version: str) -> str:
     }
     text = json.dumps(content, sort_keys=True, ensure_ascii=True, allow_nan=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
-
-
-#: Fields every crystal record holds, with their types; and fields that, when
-#: present, must have their type (None allowed where listed).
-_REQUIRED = {
-    "sample": (str,), "crystal": (str,), "mineral": (str,), "error": (str, type(None)),
-    "inputs": (list,), "parameters": (dict,), "boundaries": (list,), "warnings": (list,),
-}
-_OPTIONAL = {
-    "profile": (dict, type(None)), "zones": (dict, type(None)), "recharge_intervals_days": (list,),
-    "timing_s": (dict,), "map": (dict, type(None)),
-}
-
-
-def valid_record(record) -> bool:
-    """Whether ``record`` has the layout of a crystal record (a damaged or emptied
-    cache file must be recomputed, never reported as a crystal without a name)."""
-    if not isinstance(record, dict):
-        return False
-    for name, kinds in _REQUIRED.items():
-        if name not in record or not isinstance(record[name], kinds):
-            return False
-    for name, kinds in _OPTIONAL.items():
-        if name in record and not isinstance(record[name], kinds):
-            return False
-    return all(record[k].strip() for k in ("sample", "crystal", "mineral"))
 
 
 class ResultCache:

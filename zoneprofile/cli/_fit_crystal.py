@@ -56,8 +56,7 @@ def run_crystal(args):
         elements.append(el)
     check_limit("temperature_c", args.temperature_c, "--temperature-c")  # zoneprofile/_limits.py
     require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
-    if args.draws < 10 or args.draws > 1_000_000:
-        raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
+    check_limit("draws", args.draws, "--draws")  # zoneprofile/_limits.py
     for name in ("beam_um", "an_beam_um", "boundary_window_um"):
         value = getattr(args, name)
         if value is not None:

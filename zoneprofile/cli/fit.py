@@ -221,8 +221,7 @@ def run(args):
         log10_fo2_buffer_pa(args.fo2_buffer, 1000.0)
         if args.fo2_pa is not None:
             raise InputError("give either --fo2-pa or --fo2-buffer, not both")
-    if args.draws < 10 or args.draws > 1_000_000:
-        raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
+    check_limit("draws", args.draws, "--draws")  # zoneprofile/_limits.py
     for name in ("beam_um", "an_beam_um", "radius_um", "boundary_window_um"):
         value = getattr(args, name)
         if value is not None:

@@ -80,8 +80,8 @@ def test_path_tables_are_checked():
     [
         (dict(element="Zn", mineral="plagioclase"), "unknown element"),
         (dict(element="Sr", mineral="garnet"), "unknown mineral"),
-        (dict(element="Sr", mineral="plagioclase", temperature_c=-1), "between 0 and 1600"),
-        (dict(element="Sr", mineral="plagioclase", temperature_c=1601), "between 0 and 1600"),
+        (dict(element="Sr", mineral="plagioclase", temperature_c=-1), "valid: from 400 to 1500 °C"),
+        (dict(element="Sr", mineral="plagioclase", temperature_c=1601), "valid: from 400 to 1500 °C"),
         (dict(element="Sr", mineral="plagioclase", an=None), "needs An"),
         (dict(element="Sr", mineral="plagioclase", boundary_um=400.0), "outside the profile"),
         (dict(element="Sr", mineral="plagioclase", boundary_um=3.0), "too few points"),

@@ -331,9 +331,9 @@ def _stages(task, record, transient):
     params = task["parameters"]
     mineral = task["mineral"]
     column = params["column"]
-    from zoneprofile.campaign._schema import MINERALS
+    from zoneprofile.minerals.registry import value_column
 
-    value_columns = {e: MINERALS[mineral]["value"][e] for e in params["elements"]}
+    value_columns = {e: value_column(e, mineral) for e in params["elements"]}
     warnings = record["warnings"]
 
     # 1. read (and recalculate) the traverse

@@ -200,6 +200,8 @@ def run(args):
     from zoneprofile._output import check_outputs, write_bytes, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
+    from zoneprofile.minerals.registry import needs_an as an_needed
+    from zoneprofile._limits import check_limit
 
     element = normalise_element(args.element)
     mineral = normalise_mineral(args.mineral)
@@ -207,7 +209,7 @@ def run(args):
         raise InputError(f"unknown element '{args.element}'; choose one of: {', '.join(ELEMENTS)}")
     if mineral not in MINERALS:
         raise InputError(f"unknown mineral '{args.mineral}'; choose one of: {', '.join(MINERALS)}")
-    require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
+    check_limit("temperature_c", args.temperature_c, "--temperature-c")  # zoneprofile/_limits.py
     if args.temperature_sd_c is not None:
         require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
     for name in ("beam_sd_um", "growth_width_sd_um", "partition_a_sd"):
@@ -219,8 +221,7 @@ def run(args):
         log10_fo2_buffer_pa(args.fo2_buffer, 1000.0)
         if args.fo2_pa is not None:
             raise InputError("give either --fo2-pa or --fo2-buffer, not both")
-    if args.draws < 10 or args.draws > 1_000_000:
-        raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
+    check_limit("draws", args.draws, "--draws")  # zoneprofile/_limits.py
     for name in ("beam_um", "an_beam_um", "radius_um", "boundary_window_um"):
         value = getattr(args, name)
         if value is not None:
@@ -276,7 +277,7 @@ def run(args):
             raise
         col = source
         input_notes.append(note)
-    needs_an = mineral == "plagioclase" and element in ("Mg", "Sr", "Ba")
+    needs_an = an_needed(element, mineral)
     optional = [f"{col}_sd"]
     if args.an is not None:
         require_in_range(args.an, "--an", 0.0, 100.0, unit="mol%")

@@ -41,7 +41,7 @@ from zoneprofile.diffusion.grid import Grid
 from zoneprofile.diffusion.laws import R_J_MOL_K
 from zoneprofile.diffusion.resolution import beam_matrix
 
-SECONDS_PER_DAY = 86400.0
+from zoneprofile._units import SECONDS_PER_DAY  # noqa: E402
 UM2_PER_M2 = 1e12
 
 

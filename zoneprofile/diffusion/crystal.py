@@ -38,6 +38,7 @@ import math
 
 import numpy as np
 
+from zoneprofile._limits import check_limit
 from zoneprofile._validation import InputError
 from zoneprofile.diffusion._crystal_model import (
     SECONDS_PER_DAY,
@@ -465,6 +466,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
     from zoneprofile.diffusion.draws import section_obliquity_deg, shared_normals
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, default_law, get_law, normalise_element, \
         normalise_mineral
+    from zoneprofile.minerals.registry import needs_an as an_needed
     from zoneprofile.diffusion.resolution import beam_sigma_um, beam_variance_um2
     from zoneprofile.diffusion._steps import _noise_sd
 
@@ -474,8 +476,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         raise InputError(f"unknown mineral '{mineral}'; choose one of: {', '.join(MINERALS)}")
     t0 = float(temperature_c)
     t_sd = float(temperature_sd_c or 0.0)
-    if not math.isfinite(t0) or not 0 < t0 <= 1600:
-        raise InputError(f"temperature must lie between 0 and 1600 °C, got {temperature_c}")
+    check_limit("temperature_c", t0, "temperature")  # zoneprofile/_limits.py
     if not math.isfinite(t_sd) or t_sd < 0:
         raise InputError(f"temperature uncertainty must be >= 0 °C, got {temperature_sd_c}")
     if rim not in ("open", "closed"):
@@ -529,7 +530,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
             raise InputError(f"{el}: distances must increase from the rim")
         if np.any(y < 0):
             raise InputError(f"{el}: negative concentration {y[y < 0][0]:g}; concentrations must be >= 0")
-        coupled = mi == "plagioclase" and el in ("Mg", "Sr", "Ba")
+        coupled = an_needed(el, mi)
         needs_an = needs_an or coupled or "x_an" in law.needs
         partition_ab = None
         if coupled:

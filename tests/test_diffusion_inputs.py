@@ -109,7 +109,7 @@ def test_fit_boundary_refuses_flat_and_negative_profiles():
 
 
 def test_simulate_boundary_long_time_mirrors_an():
-    # REFERENCES.md §5: the long-time state is C ∝ exp(A·X_An/RT), not flat (Bindeman et al. 1998 A)
+    # docs/references.md §5: the long-time state is C ∝ exp(A·X_An/RT), not flat (Bindeman et al. 1998 A)
     from zoneprofile.diffusion import partition_parameters
 
     x = np.array([10.0, 90.0])

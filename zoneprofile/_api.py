@@ -130,7 +130,5 @@ class RunVocabulary(ResultVocabulary):
                             "from_cache": self.from_cache, "failed": [list(f) for f in self.failed],
                             "seconds": self.seconds, "population": self.population, "notes": self.notes})
 
-    def to_frame(self):
-        from zoneprofile.report.tables import crystals_table
-
-        return crystals_table(self.records)
+    # to_frame (one row per crystal) is defined on RunSummary itself, beside the campaign that already
+    # depends on the report's tables: the vocabulary module stays below every stage

@@ -1,6 +1,6 @@
 """A traverse: recalculated spot analyses with their distance from the rim.
 
-``distance_um`` is 0 at the rim and increases toward the core (DESIGN.md).
+``distance_um`` is 0 at the rim and increases toward the core (docs/design.md).
 Positions come from an explicit distance column or from stage X/Y projected on
 the total-least-squares line through the points.
 """

@@ -24,7 +24,7 @@ __all__ = ["crystal_stage", "crystal_first"]
 
 def _element_data(name, params, table, trace, map_profile):
     """(x, values, beam, shape) for one value column, from the same source the per-boundary fits use."""
-    from zoneprofile.campaign._pipeline import _column
+    from zoneprofile.campaign._frames import _column
 
     if table is not None and _column(table, name) is not None:
         return (np.asarray(table["distance_um"], float), _column(table, name), params.get("beam_um"),

@@ -42,6 +42,12 @@ class RunSummary(RunVocabulary):
     formats: tuple = ("png", "svg")
 
     @property
+    def to_frame(self):
+        """One row per crystal (the report's crystals table)."""
+        from zoneprofile.report.tables import crystals_table
+
+        return crystals_table(self.records)
+
     def n_crystals(self) -> int:
         return len(self.records)
 

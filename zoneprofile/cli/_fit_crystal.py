@@ -27,7 +27,7 @@ def run_crystal(args):
     from zoneprofile import __version__
     from zoneprofile._output import check_outputs, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
-    from zoneprofile.cli.fit import _check_column, _header, _value_column
+    from zoneprofile.cli._columns import _check_column, _header, _value_column
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.io.profile import read_profile

@@ -228,7 +228,7 @@ def _spot_from_an_step(grid, an_x, an_vals, b0, window, spacing):
     """Gaussian spot FWHM (µm) estimated from the apparent width of a sharp An step, or None.
 
     Used only when no spot size is given and An comes from the same spots. A
-    step wider than a 10 µm spot (REFERENCES.md §2: defocused beams 5–10 µm) is
+    step wider than a 10 µm spot (docs/references.md §2: defocused beams 5–10 µm) is
     growth zoning, not blur, and gives no estimate.
     """
     from zoneprofile.diffusion.resolution import FWHM_PER_SIGMA

@@ -193,7 +193,7 @@ def write_tables(records, population, table_dir) -> list[Path]:
     from zoneprofile.report._crystal_table import crystal_model_table
     from zoneprofile.report.ladders import gaps_table, members_table
 
-    from zoneprofile.report.supplement import round_table  # the rounding rule shared with supplement.xlsx
+    from zoneprofile.report.rounding import round_table  # the rounding rule shared with supplement.xlsx
 
     d = Path(table_dir)
     d.mkdir(parents=True, exist_ok=True)

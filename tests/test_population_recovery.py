@@ -29,8 +29,6 @@ SEED = 2026
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=False, reason="the whole-crystal model (model = \"crystal\") and the population "
-                   "events are being built on other branches; flip when they land (issue 10)")
 def test_campaign_recovers_a_known_recharge_history(tmp_path):
     folder = tmp_path / "population"
     make_population(folder, seed=SEED, model="crystal")

@@ -99,3 +99,20 @@ def test_damaged_crystal_model_reads_as_absent(tmp_path, damage):
     p = tmp_path / KEY[:2] / f"{KEY}.json"
     p.write_text(json.dumps({"key": KEY, "record": damage(_crystal_record())}))
     assert cache.get(KEY) is None
+
+
+def test_record_layout_is_the_typed_dict():
+    """The cache checks the keys and types declared by CrystalRecord, and a fresh record has them."""
+    import typing
+
+    from zoneprofile.campaign._pipeline import _base_record
+    from zoneprofile.campaign._record import CrystalRecord, valid_record
+
+    task = {"sample": "S1", "crystal": "c1", "mineral": "olivine", "parameters": {},
+            "inputs": [{"rel": "a.csv", "sha256": "0" * 64, "role": "traverse"}]}
+    base = _base_record(task)
+    assert valid_record(base)
+    assert set(base) <= set(typing.get_type_hints(CrystalRecord))  # no undeclared top-level key
+    assert set(CrystalRecord.__required_keys__) <= set(base)
+    assert not valid_record({**base, "crystal_model": [1.0]})  # a declared optional key of the wrong type
+    assert valid_record({k: v for k, v in base.items() if k not in CrystalRecord.__optional_keys__})

@@ -232,7 +232,7 @@ def test_key_lines_of_nested_tables():
 
 
 def test_element_without_default_law_needs_one(tmp_path):
-    # Ba in plagioclase: the diffusion stage has no verified default law (REFERENCES.md §3 lists none)
+    # Ba in plagioclase: the diffusion stage has no verified default law (docs/references.md §3 lists none)
     text = GOOD.replace('elements = ["Mg", "Sr"]', 'elements = ["Mg", "Ba"]')
     msg = str(error_of(write(tmp_path, text)))
     where = line_of(text, 'elements = ["Mg", "Ba"]')
@@ -245,7 +245,7 @@ def test_element_without_default_law_needs_one(tmp_path):
 
 
 def test_olivine_needs_oxygen_fugacity(tmp_path):
-    # Fe-Mg in olivine depends on fO2 (Dohmen & Chakraborty 2007, REFERENCES.md §3)
+    # Fe-Mg in olivine depends on fO2 (Dohmen & Chakraborty 2007, docs/references.md §3)
     text = GOOD.replace('mineral = "plagioclase"', 'mineral = "olivine"').replace(
         'elements = ["Mg"]', 'elements = ["FeMg"]').replace('elements = ["Mg", "Sr"]\n', "")
     msg = str(error_of(write(tmp_path, text)))

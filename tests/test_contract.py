@@ -1,4 +1,4 @@
-"""The command-line contract shared by every command (DESIGN.md)."""
+"""The command-line contract shared by every command (docs/design.md)."""
 
 import json
 

@@ -103,8 +103,8 @@ SR = ("--element", "Sr", "--mineral", "plagioclase", "--temperature-c", "1000")
     [
         (("--element", "Zn", "--mineral", "plagioclase", "--temperature-c", "1000"), "unknown element"),
         (("--element", "Sr", "--mineral", "garnet", "--temperature-c", "1000"), "unknown mineral"),
-        (("--element", "Sr", "--mineral", "plagioclase", "--temperature-c", "-5"), "between 0 and 1600"),
-        (("--element", "Sr", "--mineral", "plagioclase", "--temperature-c", "1700"), "between 0 and 1600"),
+        (("--element", "Sr", "--mineral", "plagioclase", "--temperature-c", "-5"), "valid: from 400 to 1500 °C"),
+        (("--element", "Sr", "--mineral", "plagioclase", "--temperature-c", "1700"), "valid: from 400 to 1500 °C"),
         ((*SR, "--boundary-um", "500"), "outside the profile"),
         ((*SR, "--boundary-um", "3"), "too few points"),
         ((*SR, "--plot", "fig.gif"), "unsupported figure"),

@@ -6,17 +6,17 @@ grid, the rim node at distance 0, half control volumes at both ends,
 arithmetic-mean face diffusivity and face concentration in the An term),
 stepped in time by Crank–Nicolson with a backward-Euler start (Rannacher) and
 a banded solve (scipy.linalg.solve_banded). It shares no code with
-zoneprofile's spectral finite-volume solver. The equation is REFERENCES.md §5
+zoneprofile's spectral finite-volume solver. The equation is docs/references.md §5
 (Costa, Chakraborty & Dohmen 2003, GCA 67:2189):
 
     ∂C/∂t = ∂/∂x [ D ∂C/∂x − (A/RT) · D · C · ∂X_An/∂x ]
 
 The reference solver itself is checked against Crank (1975) eq. 2.14 (erf
-step) and the steady state exp(A·ΔX_An/RT) (REFERENCES.md §5).
+step) and the steady state exp(A·ΔX_An/RT) (docs/references.md §5).
 
 The profiles are sampled as a table from a session would be: irregular
 positions 1–3 µm apart, a Gaussian beam, EPMA An ±0.5 mol% (1σ) and
-LA-ICP-MS-like Mg ±4 % (common practice, REFERENCES.md §2). They are invented
+LA-ICP-MS-like Mg ±4 % (common practice, docs/references.md §2). They are invented
 data; the truth (time, D·t) is known because we set it.
 """
 
@@ -106,7 +106,7 @@ def an_step(x_um, boundary_um, an_outer, an_inner, width_um):
 
 def reference_profile(*, element, temperature_c, time_days, boundary_um, melt_outer, melt_inner, an_outer,
                       an_inner, length_um, an_width_um=0.1, rim="open", h_um=0.1, law=None):
-    """Independent forward model: nodes, C at the nodes, An at the nodes (REFERENCES.md §5 set-up)."""
+    """Independent forward model: nodes, C at the nodes, An at the nodes (docs/references.md §5 set-up)."""
     law = law or get_law({"Mg": "costa2003-mg-plag", "Sr": "zellmer1999-sr-plag"}[element])
     t_k = temperature_c + 273.15
     span = 3.0 * length_um  # the crystal goes on beyond the traverse
@@ -139,7 +139,7 @@ def test_reference_solver_matches_crank_erf_and_steady_state():
     c = reference_solve(x, c0, np.full(x.size, 1e-3), 4000.0, rim="closed")
     exact = 0.5 - 0.5 * erf((x - 100.0) / (2.0 * math.sqrt(4.0)))
     assert np.max(np.abs(c - exact)) < 1e-3
-    # REFERENCES.md §5: closed system, steady state C(An40)/C(An80) = exp(A·(0.4−0.8)/RT), Sr, 1000 °C
+    # docs/references.md §5: closed system, steady state C(An40)/C(An80) = exp(A·(0.4−0.8)/RT), Sr, 1000 °C
     t_k = 1273.15
     xan = 0.6 + 0.2 * np.tanh((x - 100.0) / 3.0)
     alpha = -30400.0 / (R * t_k)

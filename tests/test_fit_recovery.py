@@ -31,10 +31,10 @@ DAY = 86400.0
 
 def mol_reference(x_pts, *, law, element, temperature_c, time_days, boundary_um, melt_outer, melt_inner,
                   an_outer, an_inner, beam_fwhm_um=None, length_um=250.0, n=2500, an_width_um=0.5):
-    """Independent An-coupled solver (REFERENCES.md §5 equation), values at x_pts.
+    """Independent An-coupled solver (docs/references.md §5 equation), values at x_pts.
 
     The An step is a tanh of half-width ``an_width_um`` resolved by several cells
-    (as in the REFERENCES.md §5 regression set-up): a step inside one face would
+    (as in the docs/references.md §5 regression set-up): a step inside one face would
     give a central-difference scheme a wrong interface ratio ((1+α/2)/(1−α/2)
     instead of exp(α)).
     """
@@ -121,7 +121,7 @@ def test_step_sharper_than_beam_is_not_resolved():
 
 def test_gaussian_beam_variance_sum():
     # Ganguly, Bhattacharya & Chakraborty (1988): a Gaussian spot σ on an erf profile gives an erf
-    # with D·t* = D·t + σ²/2 (REFERENCES.md §7)
+    # with D·t* = D·t + σ²/2 (docs/references.md §7)
     g = uniform_grid(200.0, 4000)
     dt, beam = 4.0, 6.0
     sigma = beam / (2 * math.sqrt(2 * math.log(2)))
@@ -184,7 +184,7 @@ def test_olivine_femg_nonlinear_recovery():
 
 
 def test_obliquity_scales_time_by_sin_cos_squared():
-    # REFERENCES.md §7: t_true = t_apparent · (sin φ · cos ψ)²
+    # docs/references.md §7: t_true = t_apparent · (sin φ · cos ψ)²
     data, truth = synthetic_boundary_profile(seed=1, element="Ti", mineral="quartz", temperature_c=850.0,
                                              time_days=3000.0, outer=20.0, inner=60.0, beam_um=2.0)
     kw = dict(element="Ti", mineral="quartz", temperature_c=850.0, beam_um=2.0, draws=100, noise_refits=0)

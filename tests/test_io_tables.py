@@ -186,7 +186,7 @@ def test_repeated_header_footer_and_parenthesised_unit_row():
 
 @pytest.mark.parametrize(
     "oxide, factor",
-    # source: REFERENCES.md §2 element -> oxide factors (printed to 4 decimals)
+    # source: docs/references.md §2 element -> oxide factors (printed to 4 decimals)
     [("SiO2", 2.1393), ("Al2O3", 1.8894), ("FeO", 1.2865), ("MgO", 1.6583), ("CaO", 1.3992), ("Na2O", 1.3480),
      ("K2O", 1.2046), ("SrO", 1.1826), ("BaO", 1.1165), ("TiO2", 1.6685), ("MnO", 1.2912)],
 )
@@ -202,7 +202,7 @@ def test_detection_limit_columns(tmp_path):
                  "a,0,55.59,28.30,10.38,5.73,0.02,0.03,bdl,0.02\n"
                  "b,2,55.59,28.30,10.38,5.73,bdl,0.03,0.05,0.02\n")
     tr = read_traverse(p)
-    # element wt% limit of Fe converted to FeO wt% with the factor 1.2865 (REFERENCES.md §2)
+    # element wt% limit of Fe converted to FeO wt% with the factor 1.2865 (docs/references.md §2)
     first, second = tr.table["censored"].tolist()
     assert "K2O 0.02 below DL 0.03 (kept)" in first and "FeO<0.0257" in first
     assert second == "K2O<0.03"  # FeO 0.05 is above its limit: nothing to say

@@ -18,8 +18,8 @@ from zoneprofile.diffusion.laws import (
 
 TOL_LOG = 0.005  # the issue asks for ±0.005 log units at the worked check points
 
-# Worked check values of REFERENCES.md §3 (computed there from the published
-# formulas). Status of each formula, as stated in REFERENCES.md:
+# Worked check values of docs/references.md §3 (computed there from the published
+# formulas). Status of each formula, as stated in docs/references.md:
 #   costa2003 Mg-plag, zellmer1999 Sr-plag, muller2013 cpx   -> FROM MEMORY formulas
 #   cherniak-watson1992 Sr-anorthite, cherniak2007 Ti-quartz -> CONFIRMED
 #   dohmen2007 olivine TaMED / PED                           -> SECONDARY
@@ -55,7 +55,7 @@ CHECKS = [
 
 @pytest.mark.parametrize("law_id, t_c, comp, expected, source", CHECKS)
 def test_worked_check_values(law_id, t_c, comp, expected, source):
-    # source: REFERENCES.md §3 worked check values; the law's status in `source`
+    # source: docs/references.md §3 worked check values; the law's status in `source`
     got = float(get_law(law_id).log10_d(t_c, **comp))
     assert got == pytest.approx(expected, abs=TOL_LOG), source
 
@@ -270,7 +270,7 @@ def test_every_law_is_complete():
 
 
 def test_every_law_has_a_docs_page():
-    # project rule (STYLE.md §17): a page per diffusion law with citation and range
+    # project rule (docs/design.md, "Documentation"): a page per diffusion law with citation and range
     from pathlib import Path
 
     folder = Path(__file__).resolve().parents[1] / "docs" / "laws"

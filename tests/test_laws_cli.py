@@ -65,7 +65,7 @@ def test_bad_input_exit_2_one_line(tmp_path, cli):
 def test_one_law_in_full(capsys):
     assert main(["laws", "dohmen2007-femg-olivine-tamed"]) == 0
     out = capsys.readouterr().out
-    # Dohmen & Chakraborty 2007 TaMED parameters (SECONDARY, REFERENCES.md §3)
+    # Dohmen & Chakraborty 2007 TaMED parameters (SECONDARY, docs/references.md §3)
     assert "log10_d0_m2_s = -9.21" in out and "ea_kj_mol = 201" in out
     assert "900–1200 °C" in out and "1e-10" in out
     assert main(["laws", "costa2003-mg-plag", "--json"]) == 0

@@ -55,7 +55,7 @@ def test_user_law_reproduces_built_in_laws(tmp_path):
     assert costa.element == "Mg" and costa.mineral == "plagioclase" and costa.status == "USER"
     t = np.array([850.0, 1000.0, 1150.0])
     x = np.array([0.45, 0.6, 0.85])
-    # built-in laws as the reference (REFERENCES.md §3, FROM MEMORY formulas)
+    # built-in laws as the reference (docs/references.md §3, FROM MEMORY formulas)
     np.testing.assert_allclose(
         costa.log10_d(t, x_an=x), get_law("costa2003-mg-plag").log10_d(t, x_an=x), atol=1e-12
     )

@@ -40,7 +40,7 @@ def test_oxide_masses_match_periodictable(name):
 
 @pytest.mark.parametrize(
     "name, mass",
-    # source: REFERENCES.md §1 (computed from CIAAW 2021), printed to 0.001 g/mol
+    # source: docs/references.md §1 (computed from CIAAW 2021), printed to 0.001 g/mol
     [("SiO2", 60.083), ("Al2O3", 101.960), ("CaO", 56.077), ("Na2O", 61.979), ("K2O", 94.196),
      ("MgO", 40.304), ("FeO", 71.844), ("Fe2O3", 159.687), ("TiO2", 79.865), ("MnO", 70.937),
      ("SrO", 103.619), ("BaO", 153.326)],
@@ -50,7 +50,7 @@ def test_oxide_masses_printed_values(name, mass):
 
 
 def test_feo_to_fe2o3_factor():
-    # source: REFERENCES.md §1, FeO -> Fe2O3 factor 1.11135
+    # source: docs/references.md §1, FeO -> Fe2O3 factor 1.11135
     assert FEO_TO_FE2O3 == pytest.approx(1.11135, abs=1e-5)
 
 
@@ -64,7 +64,7 @@ def _pt_wt(formula_parts):
 @pytest.mark.parametrize(
     "frame, parts, printed",
     [
-        # source: REFERENCES.md §1 end-member table, recomputed here with periodictable
+        # source: docs/references.md §1 end-member table, recomputed here with periodictable
         (lambda: feldspar_oxides(100), {"SiO2": 2, "Al2O3": 1, "CaO": 1}, {"SiO2": 43.194, "Al2O3": 36.650, "CaO": 20.157}),
         (lambda: feldspar_oxides(0), {"SiO2": 3, "Al2O3": 0.5, "Na2O": 0.5}, {"SiO2": 68.740, "Al2O3": 19.442, "Na2O": 11.818}),
         (lambda: feldspar_oxides(0, 100), {"SiO2": 3, "Al2O3": 0.5, "K2O": 0.5}, {"SiO2": 64.762, "Al2O3": 18.317, "K2O": 16.922}),
@@ -82,13 +82,13 @@ def test_end_member_oxides(frame, parts, printed):
     ref = _pt_wt(parts)
     for oxide, value in printed.items():
         assert got[oxide] == pytest.approx(ref[oxide], abs=1e-3)  # periodictable
-        assert got[oxide] == pytest.approx(value, abs=1.5e-3)  # REFERENCES.md §1 printed value
+        assert got[oxide] == pytest.approx(value, abs=1.5e-3)  # docs/references.md §1 printed value
 
 
 # --- exact cations of end-members -----------------------------------------------------
 
 def test_anorthite_cations_exact():
-    # source: REFERENCES.md §1: anorthite on 8 O gives Ca 1, Al 2, Si 2 (exact)
+    # source: docs/references.md §1: anorthite on 8 O gives Ca 1, Al 2, Si 2 (exact)
     r = recalculate(pd.DataFrame({"SiO2": [43.194], "Al2O3": [36.650], "CaO": [20.157], "Na2O": [0.0]}), "plagioclase")
     assert r["Ca"][0] == pytest.approx(1.0, abs=1e-4)
     assert r["Al"][0] == pytest.approx(2.0, abs=1e-4)
@@ -98,7 +98,7 @@ def test_anorthite_cations_exact():
 
 
 def test_forsterite_and_fo80_cations():
-    # source: REFERENCES.md §1 end-member oxides; stoichiometry Mg2SiO4 on 4 O
+    # source: docs/references.md §1 end-member oxides; stoichiometry Mg2SiO4 on 4 O
     r = recalculate(pd.DataFrame({"SiO2": [42.706, 39.191], "MgO": [57.294, 42.064], "FeO": [0.0, 18.745]}), "olivine")
     assert r["Mg"].tolist() == pytest.approx([2.0, 1.6], abs=2e-4)
     assert r["Si"].tolist() == pytest.approx([1.0, 1.0], abs=1e-4)
@@ -107,7 +107,7 @@ def test_forsterite_and_fo80_cations():
 
 
 def test_droop_aegirine():
-    # source: REFERENCES.md §1 / Droop (1987) check: aegirine with all Fe as FeO gives Fe3+ = 1.000 pfu
+    # source: docs/references.md §1 / Droop (1987) check: aegirine with all Fe as FeO gives Fe3+ = 1.000 pfu
     ox = pd.DataFrame({"SiO2": [52.020], "FeO": [31.101], "MgO": [0.0], "CaO": [0.0], "Na2O": [13.415]})
     r = recalculate(ox, "pyroxene")
     assert r["Fe3"][0] == pytest.approx(1.000, abs=5e-4)
@@ -124,7 +124,7 @@ def test_droop_formula_no_fe3_when_cations_short():
 
 
 def test_diopside_enstatite_wo_en_fs():
-    # stoichiometric end-members (REFERENCES.md §1); Wo/En/Fs after Morimoto (1988)
+    # stoichiometric end-members (docs/references.md §1); Wo/En/Fs after Morimoto (1988)
     r = recalculate(pyroxene_oxides([50, 0, 0], [50, 100, 0], [0, 0, 100]), "pyroxene")
     assert r["Wo"].tolist() == pytest.approx([50, 0, 0], abs=1e-9)
     assert r["En"].tolist() == pytest.approx([50, 100, 0], abs=1e-9)
@@ -185,7 +185,7 @@ def test_fo_with_mn():
 
 @pytest.mark.parametrize(
     "an, or_, name",
-    # common practice: plagioclase names by An at 10/30/50/70/90 mol% (REFERENCES.md §2)
+    # common practice: plagioclase names by An at 10/30/50/70/90 mol% (docs/references.md §2)
     [(5, 0, "albite"), (20, 1, "oligoclase"), (40, 1, "andesine"), (60, 1, "labradorite"), (80, 0, "bytownite"),
      (95, 0, "anorthite"), (2, 60, "sanidine/orthoclase"), (5, 25, "anorthoclase"), (30, 20, "ternary feldspar")],
 )

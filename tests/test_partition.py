@@ -18,7 +18,7 @@ from zoneprofile.diffusion.partition import (
 
 R = 8.314462618  # CODATA 2018
 
-# REFERENCES.md §4 check values at An60 and 900 / 1000 / 1100 °C, computed from
+# docs/references.md §4 check values at An60 and 900 / 1000 / 1100 °C, computed from
 # Bindeman, Davis & Drake (1998) RT ln K = A·X_An + B (form CONFIRMED, A and B FROM MEMORY).
 CHECKS = {
     "Mg": (0.0144, 0.0201, 0.0267),
@@ -29,13 +29,13 @@ CHECKS = {
 
 @pytest.mark.parametrize("element", sorted(CHECKS))
 def test_bindeman_check_values(element):
-    # source: REFERENCES.md §4 (Bindeman et al. 1998; A, B from memory); ±0.5 % relative
+    # source: docs/references.md §4 (Bindeman et al. 1998; A, B from memory); ±0.5 % relative
     got = partition_coefficient(element, 0.6, np.array([900.0, 1000.0, 1100.0]))
     np.testing.assert_allclose(got, CHECKS[element], rtol=5e-3)
 
 
 def test_bindeman_parameters_in_j_per_mol():
-    # REFERENCES.md §4 (FROM MEMORY), kJ/mol -> J/mol
+    # docs/references.md §4 (FROM MEMORY), kJ/mol -> J/mol
     assert partition_parameters("Mg") == (-26100.0, -25700.0)
     assert partition_parameters("sr") == (-30400.0, 28500.0)
     assert partition_parameters("Ba") == (-55000.0, 19100.0)
@@ -52,7 +52,7 @@ def test_blundy_wood_sr():
 
 
 def test_equilibrium_ratio_is_exp_a_delta_x_over_rt():
-    # REFERENCES.md §5: C_eq(An40)/C_eq(An80) = exp(A·(0.4−0.8)/RT) = 3.1542 for Sr at 1000 °C
+    # docs/references.md §5: C_eq(An40)/C_eq(An80) = exp(A·(0.4−0.8)/RT) = 3.1542 for Sr at 1000 °C
     k = partition_coefficient("Sr", np.array([0.4, 0.8]), 1000.0)
     assert k[0] / k[1] == pytest.approx(3.1542, abs=1e-4)
 

@@ -13,7 +13,6 @@ import re
 import subprocess
 from pathlib import Path
 
-import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
 PACKAGE = ROOT / "zoneprofile"
@@ -157,15 +156,11 @@ def test_import_graph_sees_a_known_edge():
     assert len(graph) > 50
 
 
-@pytest.mark.xfail(strict=False, reason="the diffusion fitting code is being untangled on another "
-                   "branch; remove this mark when it is merged (passes today)")
 def test_no_import_circle_in_the_package():
     circles = import_circles(import_graph())
     assert circles == [], "import circles (module-level imports): " + "; ".join(" <-> ".join(c) for c in circles)
 
 
-@pytest.mark.xfail(strict=False, reason="fitting <-> _an <-> uncertainty import each other inside functions "
-                   "(the optimisers live in fitting.py); being untangled on another branch")
 def test_no_import_circle_even_through_imports_inside_functions():
     # an import inside a function hides a circle from the interpreter but not from the reader
     circles = import_circles(import_graph(deferred=True))
@@ -197,8 +192,6 @@ def test_pattern_matches_what_it_should():
     assert not _OUTSIDE.search("see docs/references.md §3 and docs/design.md")
 
 
-@pytest.mark.xfail(strict=False, reason="existing pointers are re-pointed to docs/design.md and "
-                   "docs/references.md in one pass at the end; remove this mark then")
 def test_no_file_points_outside_the_repository():
     found = []
     for path in _repository_files():

@@ -1,7 +1,7 @@
 """The diffusion solver against Crank's analytical solutions, mass balance and steady states.
 
 Reference values: Crank, J. (1975) The Mathematics of Diffusion, 2nd ed., as
-listed with their check values in REFERENCES.md §6 (the values are reproduced
+listed with their check values in docs/references.md §6 (the values are reproduced
 below from the series/erf formulas with scipy as an independent reference).
 """
 
@@ -25,7 +25,7 @@ def _richardson(f, n):
 
 def test_semi_infinite_surface_held_erfc():
     # Crank (1975) p. 32: (C - C0)/(Cs - C0) = erfc(x / 2 sqrt(Dt)); check value
-    # t = 100 s, x = 1e-4 m, D = 1e-10 m2/s -> 0.4795001221869535 (REFERENCES.md §6)
+    # t = 100 s, x = 1e-4 m, D = 1e-10 m2/s -> 0.4795001221869535 (docs/references.md §6)
     expected = 0.4795001221869535
     assert erfc(0.5) == pytest.approx(expected, rel=1e-12)  # scipy reproduces the check value
 
@@ -54,7 +54,7 @@ def test_diffusion_couple_midpoint_is_mean():
 
 def test_finite_slab_in_infinite_medium():
     # Crank (1975) eq. 2.15: C = C0/2 [erf((h-x)/2√Dt) + erf((h+x)/2√Dt)];
-    # h 10 µm, D 1e-18, t 1e7 s: C(0) 0.9746526813, C(h) 0.4999961279 (REFERENCES.md §6)
+    # h 10 µm, D 1e-18, t 1e7 s: C(0) 0.9746526813, C(h) 0.4999961279 (docs/references.md §6)
     tau = 1e-18 * 1e7 * 1e12  # µm²
     h = 10.0
 
@@ -81,7 +81,7 @@ def _sheet_series(tau, a, x, terms=400):
 
 def test_plane_sheet_centre_and_uptake():
     # Crank (1975) p. 47-48: sheet -a<x<a, faces held at Cs; t 100 s, x 0, a 2e-4 m, D 1e-10:
-    # C/Cs = 0.3145542331096479, M_t/M_inf = 0.562233541762138 (REFERENCES.md §6)
+    # C/Cs = 0.3145542331096479, M_t/M_inf = 0.562233541762138 (docs/references.md §6)
     a = 200.0
     tau = 1e-10 * 100 * 1e12
     assert _sheet_series(tau, a, 0.0) == pytest.approx(0.3145542331096479, rel=1e-10)
@@ -102,7 +102,7 @@ def test_plane_sheet_centre_and_uptake():
 
 def test_sphere_centre():
     # Crank (1975) p. 91: sphere radius a, surface at Cs, centre: 1 + 2 Σ (-1)^n exp(-D n² π² t/a²);
-    # t 100 s, a 2e-4 m, D 1e-10 -> 0.8304935009764247 (REFERENCES.md §6)
+    # t 100 s, a 2e-4 m, D 1e-10 -> 0.8304935009764247 (docs/references.md §6)
     a, tau = 200.0, 1e4
     n = np.arange(1, 400)
     series = 1 + 2 * np.sum((-1.0) ** n * np.exp(-(n**2) * math.pi**2 * tau / a**2))
@@ -155,7 +155,7 @@ def test_convergence_order_two():
 
 
 def _an_problem(n=400, closed=True):
-    # REFERENCES.md §5 regression set-up: Sr, 1000 °C, A = -30.4 kJ/mol, X_An 0.4 -> 0.8 tanh step
+    # docs/references.md §5 regression set-up: Sr, 1000 °C, A = -30.4 kJ/mol, X_An 0.4 -> 0.8 tanh step
     g = uniform_grid(100.0, n)
     x_an = 0.6 + 0.2 * np.tanh((g.centres_um - 50.0) / 3.0)
     w = np.exp(-30400.0 * x_an / (R * 1273.15))
@@ -164,7 +164,7 @@ def _an_problem(n=400, closed=True):
 
 
 def test_an_coupled_mass_balance_closed():
-    # invariant: closed system conserves Σ V C to <= 1e-9 relative (REFERENCES.md §5: 2e-10)
+    # invariant: closed system conserves Σ V C to <= 1e-9 relative (docs/references.md §5: 2e-10)
     g, x_an, op = _an_problem()
     c0 = np.full(g.n, 100.0)
     m0 = op.mass(c0)
@@ -173,7 +173,7 @@ def test_an_coupled_mass_balance_closed():
 
 
 def test_an_coupled_steady_state_is_exp_a_xan_over_rt():
-    # REFERENCES.md §5: steady state C(An40)/C(An80) -> exact exp(A·(0.4-0.8)/RT) = 3.1542
+    # docs/references.md §5: steady state C(An40)/C(An80) -> exact exp(A·(0.4-0.8)/RT) = 3.1542
     # (the regression value of a finite-difference solver is 3.1547; ours is exact on the grid)
     g, x_an, op = _an_problem()
     c = op.evolve(np.full(g.n, 100.0), 1e7)
@@ -185,7 +185,7 @@ def test_an_coupled_steady_state_is_exp_a_xan_over_rt():
 
 
 def test_zero_a_constant_d_reduces_to_erf():
-    # Crank (1975) eq. 2.14 with A = 0 and constant D (REFERENCES.md §5)
+    # Crank (1975) eq. 2.14 with A = 0 and constant D (docs/references.md §5)
     g = uniform_grid(100.0, 800)
     op = LinearDiffusion(g, np.ones(g.n), weight=np.exp(0.0 * g.centres_um))
     c0 = g.cell_average(([50.0], [10.0, 20.0]))

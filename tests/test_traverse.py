@@ -155,7 +155,7 @@ def test_generator_refuses_to_overwrite(tmp_path):
 
 
 def test_feo_and_fe2o3_are_combined_as_total_iron(tmp_path):
-    # FeO + Fe2O3/1.11135 (REFERENCES.md §1 factor) must give the same formula as all-FeO
+    # FeO + Fe2O3/1.11135 (docs/references.md §1 factor) must give the same formula as all-FeO
     p = tmp_path / "fe.csv"
     p.write_text("Point,Distance,SiO2,Al2O3,FeO,Fe2O3,CaO,Na2O\n"
                  "a,0,55.59,28.30,0.20,0.33339,10.38,5.73\n"

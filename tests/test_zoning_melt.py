@@ -8,7 +8,7 @@ from zoneprofile import InputError
 from zoneprofile.zoning import analyse_zoning, melt_equivalents, mixing_fraction, recharge_fingerprint, \
     synthetic_zoned_profile
 
-# Bindeman, Davis & Drake (1998), RT ln K = A X_An + B; check values at An60 from REFERENCES.md §4
+# Bindeman, Davis & Drake (1998), RT ln K = A X_An + B; check values at An60 from docs/references.md §4
 K_CHECK = {
     "Mg": {900: 0.0144, 1000: 0.0201, 1100: 0.0267},
     "Sr": {900: 2.863, 1000: 2.636, 1100: 2.456},
@@ -19,14 +19,14 @@ K_CHECK = {
 @pytest.mark.parametrize("element", ["Mg", "Sr", "Ba"])
 @pytest.mark.parametrize("temperature_c", [900, 1000, 1100])
 def test_melt_equivalent_uses_bindeman_k(element, temperature_c):
-    # source: REFERENCES.md §4 check values (Bindeman et al. 1998 form, A and B from memory)
+    # source: docs/references.md §4 check values (Bindeman et al. 1998 form, A and B from memory)
     k = K_CHECK[element][temperature_c]
     melt, _ = melt_equivalents([60.0], pd.DataFrame({f"{element}_ppm": [100.0]}), temperature_c)
     assert melt[f"melt_{element}_ppm"].iloc[0] == pytest.approx(100.0 / k, rel=2e-3)
 
 
 def test_oxide_converted_to_element_ppm():
-    # MgO 0.1 wt% = 1000 ppm MgO = 603.0 ppm Mg (24.305/40.304, CIAAW 2021 via REFERENCES.md §1)
+    # MgO 0.1 wt% = 1000 ppm MgO = 603.0 ppm Mg (24.305/40.304, CIAAW 2021 via docs/references.md §1)
     melt, notes = melt_equivalents([60.0], pd.DataFrame({"MgO": [0.1]}), 1000)
     assert melt["melt_Mg_ppm"].iloc[0] == pytest.approx(1000 * 24.305 / 40.304 / 0.0201, rel=2e-3)
     assert any("MgO" in n for n in notes)

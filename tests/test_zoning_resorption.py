@@ -57,13 +57,13 @@ def test_normal_steps_are_not_resorption():
                                       (50, "labradorite"), (70, "bytownite"), (89.9, "bytownite"),
                                       (90, "anorthite"), (100, "anorthite")])
 def test_plagioclase_names(an, name):
-    # REFERENCES.md §2 (common practice): albite 0-10, oligoclase 10-30, andesine 30-50,
+    # docs/references.md §2 (common practice): albite 0-10, oligoclase 10-30, andesine 30-50,
     # labradorite 50-70, bytownite 70-90, anorthite 90-100 mol% An
     assert feldspar_species([an]) == [name]
 
 
 def test_alkali_feldspar_core_mantled_by_plagioclase():
-    # REFERENCES.md §2: sanidine Or-rich; a change of feldspar series is a mantle
+    # docs/references.md §2: sanidine Or-rich; a change of feldspar series is a mantle
     x, an, _ = synthetic_zoned_profile(seed=1, length_um=100, spacing_um=1.0, noise_sd=0.4, core_value=3.0,
                                        steps=[(40.0, 42.0)])
     or_ = np.where(x < 40, 1.5, 45.0)

@@ -46,6 +46,9 @@ class Limit:
 LIMITS: dict[str, Limit] = {
     "seed": Limit(int, 0, 2**63 - 1, why="a seed is a non-negative whole number"),
     "draws": Limit(int, 50, 100_000, why="a 2.5-97.5 percentile band needs some 40 draws or more (common practice)"),
+    # magma storage temperature: from below the wet granite solidus (~650 °C) to above basalt and
+    # picrite liquidus temperatures (~1300-1450 °C), with margin (common practice); docs/run-a-campaign.md
+    "temperature_c": Limit(float, 400, 1500, "°C", why="storage temperature of the crystal after the recharge"),
     "temperature_sd_c": Limit(float, 0, 300, "°C", why="1-sigma uncertainty of the temperature"),
     "beam_um": Limit(float, 0, 200, "µm", low_open=True, why="beam diameter; leave it out for no beam correction"),
     "an_beam_um": Limit(float, 0, 200, "µm", low_open=True, why="beam diameter of the An table"),
@@ -60,8 +63,8 @@ LIMITS: dict[str, Limit] = {
 
 #: Options of each command checked against :data:`LIMITS` (argparse ``dest``).
 CLI_OPTIONS: dict[str, tuple[str, ...]] = {
-    "fit": ("seed", "draws", "temperature_sd_c", "beam_um", "an_beam_um", "radius_um"),
-    "zones": ("noise_sd",),
+    "fit": ("seed", "draws", "temperature_c", "temperature_sd_c", "beam_um", "an_beam_um", "radius_um"),
+    "zones": ("noise_sd", "temperature_c"),
     "map": ("width_px", "spot_um"),
     "recalc": ("beam_um",),
 }

@@ -12,10 +12,12 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["DAYS_PER_YEAR", "days_unit", "format_days", "format_days_range"]
+__all__ = ["DAYS_PER_YEAR", "SECONDS_PER_DAY", "days_unit", "format_days", "format_days_range"]
 
 #: the Julian year (IAU), in days
 DAYS_PER_YEAR = 365.25
+#: seconds in a day (SI); diffusivities are in m²/s, times in days
+SECONDS_PER_DAY = 86400.0
 _YEARS_FROM_DAYS = 3 * DAYS_PER_YEAR
 
 

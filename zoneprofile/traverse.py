@@ -1,6 +1,6 @@
 """A traverse: recalculated spot analyses with their distance from the rim.
 
-``distance_um`` is 0 at the rim and increases toward the core (DESIGN.md).
+``distance_um`` is 0 at the rim and increases toward the core (docs/design.md).
 Positions come from an explicit distance column or from stage X/Y projected on
 the total-least-squares line through the points.
 """
@@ -18,6 +18,7 @@ import pandas as pd
 from zoneprofile._validation import InputError, require_choice, require_positive
 from zoneprofile.io.microprobe import Analyses, read_analyses
 from zoneprofile.minerals import MINERALS, get_mineral, recalculate
+from zoneprofile._api import TraverseVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["Traverse", "read_traverse", "project_on_line", "infer_length_unit", "traverse_from_analyses"]
 
@@ -27,7 +28,7 @@ MM_STEP_THRESHOLD = 0.25
 
 
 @dataclass
-class Traverse:
+class Traverse(TraverseVocabulary):
     """Recalculated analyses along one traverse, rim first.
 
     Attributes

@@ -18,7 +18,7 @@ from zoneprofile.campaign._run import (
     run_campaign,
     write_campaign_outputs,
 )
-from zoneprofile.campaign._schema import MINERALS, Campaign, CrystalSpec, crystal_seed, load_campaign
+from zoneprofile.campaign._schema import Campaign, CrystalSpec, crystal_seed, load_campaign
 
 __all__ = [
     "load_campaign",
@@ -33,5 +33,4 @@ __all__ = [
     "crystal_seed",
     "task_key",
     "ResultCache",
-    "MINERALS",
 ]

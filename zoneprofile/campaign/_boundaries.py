@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from zoneprofile.minerals.registry import REGISTRY as MINERAL_TABLE
+
 __all__ = ["MATCH_UM", "match_position", "select_boundaries", "segment_of", "position_window"]
 
 #: A step found by zoning and a boundary listed by hand, or seen on a map, are
@@ -24,7 +26,7 @@ def match_position(position, candidates, *, sd=None):
 
 #: Minerals without a melt-equivalent fingerprint: a reverse step (Fo or Mg# rising toward the rim,
 #: a more mafic melt; Ti in quartz rising toward the rim, a hotter melt) is taken as recharge-like.
-_REVERSE_IS_RECHARGE = ("olivine", "pyroxene", "quartz")
+_REVERSE_IS_RECHARGE = tuple(m.name for m in MINERAL_TABLE if m.reverse_is_recharge)  # zoneprofile/minerals/registry.py
 
 
 def _is_recharge(step: dict, mineral: str) -> bool:

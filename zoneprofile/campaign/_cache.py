@@ -18,6 +18,7 @@ import json
 from pathlib import Path
 
 from zoneprofile._output import to_jsonable, write_bytes, write_text
+from zoneprofile.campaign._record import valid_record  # the record layout, checked once on reading
 
 __all__ = ["RECORD_LAYOUT", "task_key", "code_fingerprint", "ResultCache"]
 
@@ -54,74 +55,6 @@ def task_key(task: dict, version: str) -> str:
     }
     text = json.dumps(content, sort_keys=True, ensure_ascii=True, allow_nan=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
-
-
-#: Fields every crystal record holds, with their types; and fields that, when
-#: present, must have their type (None allowed where listed).
-_REQUIRED = {
-    "sample": (str,), "crystal": (str,), "mineral": (str,), "error": (str, type(None)),
-    "inputs": (list,), "parameters": (dict,), "boundaries": (list,), "warnings": (list,),
-}
-_OPTIONAL = {
-    "profile": (dict, type(None)), "zones": (dict, type(None)), "recharge_intervals_days": (list,),
-    "timing_s": (dict,), "map": (dict, type(None)), "crystal_model": (dict, type(None)),
-    "model": (dict, type(None)),
-}
-_TIME_KEYS = ("median", "p2_5", "p97_5", "upper_bound", "lower_bound")
-_STATEMENTS = ("date", "upper_bound", "lower_bound", "none")
-
-
-def _time_summary_ok(td) -> bool:
-    if not isinstance(td, dict) or td.get("statement") not in _STATEMENTS:
-        return False
-    return all(td.get(k) is None or (isinstance(td[k], (int, float)) and not isinstance(td[k], bool))
-               for k in _TIME_KEYS)
-
-
-def _crystal_model_ok(cm) -> bool:
-    """A whole-crystal model's layout (docs/whole-crystal-model.md): boundaries oldest first, each
-    with a time summary; one gap fewer than boundaries, each between two successive ids."""
-    if cm is None:
-        return True
-    bs, gaps = cm.get("boundaries"), cm.get("gaps")
-    if not isinstance(bs, list) or not bs or not isinstance(gaps, list) or len(gaps) != len(bs) - 1:
-        return False
-    for b in bs:
-        if not isinstance(b, dict) or not isinstance(b.get("id"), str) or not _time_summary_ok(b.get("age_days")):
-            return False
-        if not isinstance(b.get("position_um"), (int, float)) or isinstance(b.get("position_um"), bool):
-            return False
-        if not all(_time_summary_ok(td) for td in (b.get("by_element") or {}).values()):
-            return False
-    for g, older, younger in zip(gaps, bs[:-1], bs[1:]):
-        if not isinstance(g, dict) or not _time_summary_ok(g.get("days")):
-            return False
-        if (g.get("older"), g.get("younger")) != (older["id"], younger["id"]):
-            return False
-    return True
-
-
-def _model_ok(model) -> bool:
-    return model is None or (model.get("used") in ("crystal", "boundary")
-                             and isinstance(model.get("note", ""), str))
-
-
-def valid_record(record) -> bool:
-    """Whether ``record`` has the layout of a crystal record (a damaged or emptied
-    cache file must be recomputed, never reported as a crystal without a name)."""
-    if not isinstance(record, dict):
-        return False
-    for name, kinds in _REQUIRED.items():
-        if name not in record or not isinstance(record[name], kinds):
-            return False
-    for name, kinds in _OPTIONAL.items():
-        if name in record and not isinstance(record[name], kinds):
-            return False
-    if not (_crystal_model_ok(record.get("crystal_model")) and _model_ok(record.get("model"))):
-        return False
-    if (record.get("model") or {}).get("used") == "crystal" and not record.get("crystal_model"):
-        return False  # dated by the whole-crystal model, but its result is missing
-    return all(record[k].strip() for k in ("sample", "crystal", "mineral"))
 
 
 class ResultCache:

@@ -24,7 +24,7 @@ __all__ = ["crystal_stage", "crystal_first"]
 
 def _element_data(name, params, table, trace, map_profile):
     """(x, values, beam, shape) for one value column, from the same source the per-boundary fits use."""
-    from zoneprofile.campaign._pipeline import _column
+    from zoneprofile.campaign._frames import _column
 
     if table is not None and _column(table, name) is not None:
         return (np.asarray(table["distance_um"], float), _column(table, name), params.get("beam_um"),
@@ -40,7 +40,7 @@ def _element_data(name, params, table, trace, map_profile):
 def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile, an, an_x, an_beam,
                   map_obliquity=()):
     """Fit the whole-crystal model to a crystal's dated boundaries; the result goes into ``record``."""
-    from zoneprofile.campaign._schema import MINERALS
+    from zoneprofile.minerals.registry import value_column
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.draws import sample_seed
 
@@ -52,7 +52,7 @@ def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile
     profiles = {}
     missing = []
     for element in params["elements"]:
-        data = _element_data(MINERALS[mineral]["value"][element], params, table, trace, map_profile)
+        data = _element_data(value_column(element, mineral), params, table, trace, map_profile)
         if data is None:
             missing.append(element)
             continue

@@ -31,6 +31,7 @@ from zoneprofile.campaign._boundaries import (
     position_window,
     select_boundaries,
 )
+from zoneprofile.campaign._frames import _column
 from zoneprofile.campaign._pictures import calibrated_image, render_figures, render_map
 
 __all__ = ["process_crystal", "boundary_seed", "STAGES"]
@@ -132,15 +133,6 @@ def _read_map(task, params, column):
         channel=params.get("channel"),
         column=column,
     )
-
-
-def _column(frame, name):
-    if frame is None or name not in frame.columns:
-        return None
-    values = np.asarray(frame[name], dtype=float)
-    if np.count_nonzero(np.isfinite(values)) < 3:
-        return None
-    return values
 
 
 def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window, neighbours, beam, shape,
@@ -331,9 +323,9 @@ def _stages(task, record, transient):
     params = task["parameters"]
     mineral = task["mineral"]
     column = params["column"]
-    from zoneprofile.campaign._schema import MINERALS
+    from zoneprofile.minerals.registry import value_column
 
-    value_columns = {e: MINERALS[mineral]["value"][e] for e in params["elements"]}
+    value_columns = {e: value_column(e, mineral) for e in params["elements"]}
     warnings = record["warnings"]
 
     # 1. read (and recalculate) the traverse

@@ -20,12 +20,13 @@ from zoneprofile.campaign._cache import ResultCache, task_key
 from zoneprofile.campaign._executors import Progress, execute
 from zoneprofile.campaign._pipeline import process_crystal
 from zoneprofile.campaign._schema import Campaign, load_campaign
+from zoneprofile._api import RunVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["run_campaign", "execute_campaign", "write_campaign_outputs", "RunSummary", "build_tasks"]
 
 
 @dataclass
-class RunSummary:
+class RunSummary(RunVocabulary):
     """What a campaign run did."""
 
     out_dir: Path
@@ -41,6 +42,12 @@ class RunSummary:
     formats: tuple = ("png", "svg")
 
     @property
+    def to_frame(self):
+        """One row per crystal (the report's crystals table)."""
+        from zoneprofile.report.tables import crystals_table
+
+        return crystals_table(self.records)
+
     def n_crystals(self) -> int:
         return len(self.records)
 

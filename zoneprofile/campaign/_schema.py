@@ -36,43 +36,9 @@ from pathlib import Path
 
 from zoneprofile._validation import InputError
 from zoneprofile.campaign._toml_lines import KeyLines
+from zoneprofile.minerals.registry import BY_NAME as MINERAL_FACTS  # zoning column, elements, value columns
 
-__all__ = ["Campaign", "CrystalSpec", "load_campaign", "MINERALS", "crystal_seed"]
-
-# mineral -> zoning column, elements that can be dated, default elements, value column per element
-MINERALS: dict[str, dict] = {
-    "plagioclase": {
-        "column": "An",
-        "elements": ("Mg", "Sr", "Ba"),
-        "default_elements": ("Mg",),
-        "value": {"Mg": "Mg_ppm", "Sr": "Sr_ppm", "Ba": "Ba_ppm"},
-    },
-    "alkali-feldspar": {
-        "column": "Or",
-        "elements": ("Sr", "Ba"),
-        "default_elements": ("Ba",),
-        "value": {"Sr": "Sr_ppm", "Ba": "Ba_ppm"},
-    },
-    "olivine": {
-        "column": "Fo",
-        "elements": ("FeMg",),
-        "default_elements": ("FeMg",),
-        "value": {"FeMg": "Fo"},
-    },
-    "pyroxene": {
-        "column": "Mg_number",
-        "elements": ("FeMg",),
-        "default_elements": ("FeMg",),
-        "value": {"FeMg": "Mg_number"},
-    },
-    # quartz has no major-element zoning to recalculate: its Ti (ppm) comes from a trace table
-    "quartz": {
-        "column": "Ti_ppm",
-        "elements": ("Ti",),
-        "default_elements": ("Ti",),
-        "value": {"Ti": "Ti_ppm"},
-    },
-}
+__all__ = ["Campaign", "CrystalSpec", "load_campaign", "crystal_seed"]
 
 # Built-in defaults (documented in docs/run-a-campaign.md).
 BUILTIN = {
@@ -340,7 +306,7 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
             continue
         w = where + (key,)
         if key == "mineral":
-            out[key] = _text(ctx, value, w, choices=tuple(MINERALS))
+            out[key] = _text(ctx, value, w, choices=tuple(MINERAL_FACTS))
         elif key == "column":
             out[key] = _text(ctx, value, w)
         elif key == "elements":
@@ -355,7 +321,7 @@ def _settings(ctx, table: dict, where: tuple) -> dict:
                 raise ctx.fail(w, f"an element is listed twice in {names}")
             out[key] = names
         elif key == "temperature_c":
-            out[key] = _number(ctx, value, w, low=400, high=1500, unit="°C")
+            out[key] = _limited(ctx, value, w, key)
         elif key in ("temperature_sd_c", "beam_um", "trace_beam_um"):
             out[key] = _limited(ctx, value, w, key)
         elif key in ("beam_shape", "trace_beam_shape"):
@@ -603,21 +569,21 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         params.update(own)
         params["laws"] = {**defaults.get("laws", {}), **samples[sample].get("laws", {}), **own.get("laws", {})}
         mineral = params["mineral"]
-        info = MINERALS[mineral]
-        params.setdefault("column", info["column"])
+        info = MINERAL_FACTS[mineral]
+        params.setdefault("column", info.zoning_column)
         if "elements" not in params:
-            params["elements"] = list(info["default_elements"])
+            params["elements"] = list(info.default_elements)
         for element in params["elements"]:
-            if element not in info["elements"]:
+            if element not in info.element_names:
                 source = where + ("elements",) if "elements" in own else ("defaults", "elements")
-                hint = difflib.get_close_matches(element, info["elements"], n=1, cutoff=0.5)
+                hint = difflib.get_close_matches(element, info.element_names, n=1, cutoff=0.5)
                 more = f"; did you mean '{hint[0]}'?" if hint else ""
                 raise ctx.fail(source, f"element '{element}' cannot be dated in {mineral}; choose from "
-                               f"{', '.join(info['elements'])}{more}", what=_describe(where + ("elements",)))
+                               f"{', '.join(info.element_names)}{more}", what=_describe(where + ("elements",)))
         for element in params["laws"]:
-            if element not in info["elements"]:
+            if element not in info.element_names:
                 raise ctx.fail(where + ("laws",), f"law given for '{element}', which is not an element of "
-                               f"{mineral} ({', '.join(info['elements'])})")
+                               f"{mineral} ({', '.join(info.element_names)})")
         for element in params["elements"]:
             if element not in params["laws"]:
                 problem = _no_default_law(element, mineral)

@@ -27,10 +27,12 @@ def run_crystal(args):
     from zoneprofile import __version__
     from zoneprofile._output import check_outputs, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
-    from zoneprofile.cli.fit import _check_column, _header, _value_column
+    from zoneprofile.cli._columns import _check_column, _header, _value_column
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.io.profile import read_profile
+    from zoneprofile.minerals.registry import needs_an as an_needed
+    from zoneprofile._limits import check_limit
 
     for name, flag in _UNSUPPORTED.items():
         if getattr(args, name, None) is not None:
@@ -52,10 +54,9 @@ def run_crystal(args):
         if el in elements:
             raise InputError(f"element {el} is named twice in --element")
         elements.append(el)
-    require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
+    check_limit("temperature_c", args.temperature_c, "--temperature-c")  # zoneprofile/_limits.py
     require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
-    if args.draws < 10 or args.draws > 1_000_000:
-        raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
+    check_limit("draws", args.draws, "--draws")  # zoneprofile/_limits.py
     for name in ("beam_um", "an_beam_um", "boundary_window_um"):
         value = getattr(args, name)
         if value is not None:
@@ -73,7 +74,7 @@ def run_crystal(args):
 
     header = _header(profile_path)
     columns = {el: _value_column(header, el, mineral, profile_path) for el in elements}
-    needs_an = mineral == "plagioclase" and any(el in ("Mg", "Sr", "Ba") for el in elements)
+    needs_an = any(an_needed(el, mineral) for el in elements)
     optional = [f"{c}_sd" for c in columns.values()]
     if args.an is not None:
         require_in_range(args.an, "--an", 0.0, 100.0, unit="mol%")

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from zoneprofile.cli._columns import _check_column, _header, _value_column  # shared with fit --crystal
+
 DESCRIPTION = """\
 Fit the diffusion equation to one or more zone boundaries of a profile and turn
 the fitted D·t into a time at the given temperature, with Monte Carlo
@@ -102,55 +104,6 @@ def configure(parser):
                              "event; --element may list several elements, e.g. Mg,Sr, fitted with shared ages)")
 
 
-def _value_column(frame_columns, element, mineral, path):
-    from zoneprofile._validation import InputError
-    from zoneprofile.diffusion.fitting import ELEMENT_COLUMNS
-
-    col = ELEMENT_COLUMNS.get((element, mineral))
-    if col is None:
-        raise InputError(f"no diffusion model for {element} in {mineral}; see 'zoneprofile laws'")
-    if col == "Fo" and "Fo" not in frame_columns and "X_Fe" in frame_columns:
-        return "X_Fe"
-    if col not in frame_columns:
-        raise InputError(f"no '{col}' column: {element} in {mineral} is read from '{col}'", path=path)
-    return col
-
-
-def _header(path):
-    from zoneprofile.io.profile import read_text_table
-
-    if str(path).lower().endswith((".xlsx", ".xlsm")):
-        from zoneprofile.io.profile import read_profile
-
-        return set(read_profile(path, columns=(), include_flagged=True).columns) | _xlsx_header(path)
-    frame, _ = read_text_table(path, header_contains=("distance_um",))
-    return {c.strip() for c in frame.columns}
-
-
-def _xlsx_header(path):
-    try:
-        from zoneprofile.io import tables
-
-        return {c.strip() for c in tables.read_sheet_as_text(path, header_contains=("distance_um",)).columns}
-    except Exception:  # noqa: BLE001 - fall back to read_profile's own error
-        return set()
-
-
-def _check_column(frame, col, path, *, low=0.0, high=None, what="concentration"):
-    import numpy as np
-
-    from zoneprofile._validation import InputError
-
-    values = frame[col].to_numpy(float)
-    bad = np.flatnonzero(values < low) if high is None else np.flatnonzero((values < low) | (values > high))
-    if bad.size:
-        k = int(bad[0])
-        rng = f">= {low:g}" if high is None else f"between {low:g} and {high:g}"
-        message = f"{what} must be {rng}"
-        raise InputError(message, path=path, row=int(frame["_row"].iloc[k]), column=col, text=f"{values[k]:g}")
-    return values
-
-
 def _read_path_table(path):
     from zoneprofile._validation import InputError
     from zoneprofile.diffusion.paths import TablePath
@@ -200,6 +153,8 @@ def run(args):
     from zoneprofile._output import check_outputs, write_bytes, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
+    from zoneprofile.minerals.registry import needs_an as an_needed
+    from zoneprofile._limits import check_limit
 
     element = normalise_element(args.element)
     mineral = normalise_mineral(args.mineral)
@@ -207,7 +162,7 @@ def run(args):
         raise InputError(f"unknown element '{args.element}'; choose one of: {', '.join(ELEMENTS)}")
     if mineral not in MINERALS:
         raise InputError(f"unknown mineral '{args.mineral}'; choose one of: {', '.join(MINERALS)}")
-    require_in_range(args.temperature_c, "--temperature-c", 0.0, 1600.0, unit="°C")
+    check_limit("temperature_c", args.temperature_c, "--temperature-c")  # zoneprofile/_limits.py
     if args.temperature_sd_c is not None:
         require_positive(args.temperature_sd_c, "--temperature-sd-c", allow_zero=True)
     for name in ("beam_sd_um", "growth_width_sd_um", "partition_a_sd"):
@@ -219,8 +174,7 @@ def run(args):
         log10_fo2_buffer_pa(args.fo2_buffer, 1000.0)
         if args.fo2_pa is not None:
             raise InputError("give either --fo2-pa or --fo2-buffer, not both")
-    if args.draws < 10 or args.draws > 1_000_000:
-        raise InputError(f"--draws must lie between 10 and 1000000, got {args.draws}")
+    check_limit("draws", args.draws, "--draws")  # zoneprofile/_limits.py
     for name in ("beam_um", "an_beam_um", "radius_um", "boundary_window_um"):
         value = getattr(args, name)
         if value is not None:
@@ -276,7 +230,7 @@ def run(args):
             raise
         col = source
         input_notes.append(note)
-    needs_an = mineral == "plagioclase" and element in ("Mg", "Sr", "Ba")
+    needs_an = an_needed(element, mineral)
     optional = [f"{col}_sd"]
     if args.an is not None:
         require_in_range(args.an, "--an", 0.0, 100.0, unit="mol%")

@@ -95,7 +95,10 @@ def run(args) -> int:
         raise InputError(message)
 
     defaults = {law_id: pair for pair, law_id in DEFAULTS.items()}
-    show_partition = mineral in (None, "plagioclase") and element in (None, "Mg", "Sr", "Ba")
+    from zoneprofile.minerals.registry import REGISTRY as MINERAL_TABLE
+
+    coupled = {(d.element, m.law_mineral) for m in MINERAL_TABLE for d in m.elements if d.needs_an}
+    show_partition = any(element in (None, e) and mineral in (None, mi) for e, mi in coupled)
     models = list(PARTITION_MODELS.values()) if show_partition else []
     if element is not None:
         models = [m for m in models if element in m.elements]

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from zoneprofile.minerals.registry import recalculated_minerals
+
 DESCRIPTION = """\
 Recalculate microprobe spot analyses along a traverse into mineral formulae
 and a composition profile measured from the rim.
@@ -42,9 +44,9 @@ def _pair(text: str, name: str):
     return low, high
 
 
-#: kept here so that 'zoneprofile --help' does not import the science stack;
-#: a test checks it against zoneprofile.minerals.MINERALS
-MINERAL_NAMES = ("plagioclase", "alkali-feldspar", "olivine", "pyroxene")
+#: from the light mineral table, so that 'zoneprofile --help' does not import
+#: pandas; a test checks it against zoneprofile.minerals.MINERALS
+MINERAL_NAMES = recalculated_minerals()
 
 
 def configure(parser):

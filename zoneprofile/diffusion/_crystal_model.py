@@ -41,7 +41,7 @@ from zoneprofile.diffusion.grid import Grid
 from zoneprofile.diffusion.laws import R_J_MOL_K
 from zoneprofile.diffusion.resolution import beam_matrix
 
-SECONDS_PER_DAY = 86400.0
+from zoneprofile._units import SECONDS_PER_DAY  # noqa: E402
 UM2_PER_M2 = 1e12
 
 
@@ -91,8 +91,10 @@ class AnZones:
     """Frozen An on the grid: inside each zone a straight line through its An points; a sharp step at each boundary.
 
     The points belonging to each zone are chosen once (at the start
-    positions), keeping those more than ``guard_um`` from the zone's edges when
-    at least one remains (a spot straddling a boundary sees both zones); the
+    positions), keeping those more than a guard from the zone's edges (a spot
+    straddling a boundary sees both zones): ``guard_um`` may list several
+    guards, and the widest that leaves at least four points (a line and its
+    scatter) is used, else the narrowest that leaves one; the
     cell values are then interpolated at the cell centres, so they move
     smoothly with the boundaries.
     """
@@ -101,31 +103,53 @@ class AnZones:
         ax = np.asarray(an_x, float)
         av = np.asarray(an_values, float) / 100.0
         pos = np.asarray(positions_um, float)
-        edges = np.concatenate([[np.inf if end_um is None else max(end_um, ax.max()) + 1.0], pos, [-np.inf]])
+        # the widest guard that leaves a line's worth of points (4), else the narrowest leaving one
+        guards = sorted(np.atleast_1d(np.asarray(guard_um, float)).tolist(), reverse=True)
+        # the rim (distance 0) is an edge too: a spot there sees partly outside the crystal
+        rim = min(0.0, float(ax.min())) - 1e-9
+        edges = np.concatenate([[np.inf if end_um is None else max(end_um, ax.max()) + 1.0], pos, [rim]])
         # zone z lies between edges[z + 1] (rimward) and edges[z] (coreward); zone 0 the core
         self.zones = []
+        self.lines = []
         for z in range(pos.size + 1):
             lo, hi = edges[z + 1], edges[z]
             inside = (ax > lo) & (ax < hi)
-            guarded = inside & (ax > lo + guard_um) & (ax < hi - guard_um)
-            pick = guarded if np.any(guarded) else inside
+            pick = inside
+            for g in guards:
+                guarded = inside & (ax > lo + g) & (ax < hi - g)
+                if np.count_nonzero(guarded) >= (4 if g > guards[-1] else 1):
+                    pick = guarded
+                    break
             if not np.any(pick):
                 centre = 0.5 * (max(lo, ax.min()) + min(hi, ax.max()))
                 pick = np.zeros(ax.size, bool)
                 pick[int(np.argmin(np.abs(ax - centre)))] = True
             zx, zv = ax[pick], av[pick]
+            line = None
             if zx.size >= 4:
-                # a straight line through the zone's points: the zone's own trend, not its noise
-                coef = np.polyfit(zx - zx.mean(), zv, 1)
-                zv = np.polyval(coef, zx - zx.mean())
+                # a straight line through the zone's points: the zone's own trend, not its noise;
+                # it is carried up to the zone's edges (the points near an edge were left out)
+                # (a slope within two standard errors of zero is noise: the zone is then flat)
+                t = zx - zx.mean()
+                coef = np.polyfit(t, zv, 1)
+                resid = zv - np.polyval(coef, t)
+                se = math.sqrt(float(resid @ resid) / (zx.size - 2) / float(t @ t))
+                if abs(coef[0]) < 2.0 * se:
+                    coef = np.array([0.0, float(np.mean(zv))])
+                line = (coef, zx.mean())
+                zv = np.polyval(coef, t)
             self.zones.append((zx, zv))
+            self.lines.append(line)
         self.x_ref = float(np.mean(av))
 
     def cells(self, centres_um, zone_of_cells):
         out = np.empty(centres_um.size)
-        for z, (zx, zv) in enumerate(self.zones):
+        for z, ((zx, zv), line) in enumerate(zip(self.zones, self.lines)):
             sel = zone_of_cells == z
-            out[sel] = np.interp(centres_um[sel], zx, zv)
+            if line is None:
+                out[sel] = np.interp(centres_um[sel], zx, zv)
+            else:
+                out[sel] = np.clip(np.polyval(line[0], centres_um[sel] - line[1]), 0.0, 1.0)
         return out
 
     def step_sizes(self):

@@ -36,6 +36,7 @@ import math
 
 import numpy as np
 
+from zoneprofile._limits import check_limit
 from zoneprofile._validation import InputError
 from zoneprofile.diffusion._an import _frozen_an, _tie_to_an_step
 from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for compatibility
@@ -51,22 +52,15 @@ from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for co
 from zoneprofile.diffusion import _window
 from zoneprofile.diffusion._steps import _noise_sd, _side_means, find_boundaries
 from zoneprofile.diffusion.uncertainty import propagate
+from zoneprofile.minerals.registry import REGISTRY as MINERAL_TABLE
+from zoneprofile.minerals.registry import needs_an as an_needed
 
 __all__ = ["fit_boundary", "find_boundaries", "ELEMENT_COLUMNS"]
 
 UM2_PER_M2 = 1e12
 
-#: value column read for each (element, mineral) by the command line
-ELEMENT_COLUMNS = {
-    ("Mg", "plagioclase"): "Mg_ppm",
-    ("Sr", "plagioclase"): "Sr_ppm",
-    ("Ba", "plagioclase"): "Ba_ppm",
-    ("Sr", "alkali-feldspar"): "Sr_ppm",
-    ("Ba", "alkali-feldspar"): "Ba_ppm",
-    ("FeMg", "olivine"): "Fo",
-    ("FeMg", "clinopyroxene"): "Mg_number",
-    ("Ti", "quartz"): "Ti_ppm",
-}
+#: value column read for each (element, mineral) by the command line (from zoneprofile/minerals/registry.py)
+ELEMENT_COLUMNS = {(d.element, m.law_mineral): d.column for m in MINERAL_TABLE for d in m.elements}
 
 _MIN_SIDE_POINTS = 3
 
@@ -81,9 +75,7 @@ def _check_inputs(distance_um, value, element, mineral, temperature_c):
         raise InputError(f"unknown element '{element}'; choose one of: {', '.join(ELEMENTS)}")
     if mi not in MINERALS:
         raise InputError(f"unknown mineral '{mineral}'; choose one of: {', '.join(MINERALS)}")
-    t = float(temperature_c)
-    if not math.isfinite(t) or t < 0 or t > 1600:
-        raise InputError(f"temperature must lie between 0 and 1600 °C, got {temperature_c}")
+    t = float(check_limit("temperature_c", float(temperature_c), "temperature"))  # zoneprofile/_limits.py
     x = np.asarray(distance_um, float)
     y = np.asarray(value, float)
     if x.ndim != 1 or x.shape != y.shape:
@@ -236,7 +228,7 @@ def _spot_from_an_step(grid, an_x, an_vals, b0, window, spacing):
     """Gaussian spot FWHM (µm) estimated from the apparent width of a sharp An step, or None.
 
     Used only when no spot size is given and An comes from the same spots. A
-    step wider than a 10 µm spot (REFERENCES.md §2: defocused beams 5–10 µm) is
+    step wider than a 10 µm spot (docs/references.md §2: defocused beams 5–10 µm) is
     growth zoning, not blur, and gives no estimate.
     """
     from zoneprofile.diffusion.resolution import FWHM_PER_SIGMA
@@ -469,7 +461,7 @@ def _fit_boundary(
         raise InputError("the profile is flat (its range is within the noise): nothing to fit")
 
     an_x = an_vals = None
-    needs_an = "x_an" in law_obj.needs or (mi == "plagioclase" and el in ("Mg", "Sr", "Ba"))
+    needs_an = "x_an" in law_obj.needs or an_needed(el, mi)
     if needs_an:
         if an is None:
             raise InputError(f"{el} in {mi} needs An (mol%) along the profile: give an An column or --an-from")
@@ -594,7 +586,7 @@ def _fit_boundary(
         an_lo, an_hi = _side_means(an_x, an_vals, b0) if np.sum(an_x < b0) and np.sum(an_x > b0) else (
             float(np.mean(an_vals)),) * 2
         reference["x_an"] = 0.5 * (an_lo + an_hi) / 100.0
-        if mi == "plagioclase" and el in ("Mg", "Sr", "Ba"):
+        if an_needed(el, mi):  # An-coupled partitioning
             from zoneprofile.diffusion.partition import partition_parameters, partition_range_warnings
 
             coupling = "an"

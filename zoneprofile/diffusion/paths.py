@@ -28,7 +28,7 @@ from zoneprofile._validation import InputError
 
 __all__ = ["LinearCooling", "TablePath", "durations_days"]
 
-_SECONDS_PER_DAY = 86400.0
+from zoneprofile._units import SECONDS_PER_DAY as _SECONDS_PER_DAY  # noqa: E402
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@ r"""The 1-D diffusion solver: mass-conservative finite volumes in space.
 Two solvers share one discretisation.
 
 ``LinearDiffusion`` (the equation is linear in C)
-    For a trace element in plagioclase with frozen An, REFERENCES.md §5:
+    For a trace element in plagioclase with frozen An, docs/references.md §5:
 
     .. math::
 

@@ -12,10 +12,11 @@ import numpy as np
 from scipy.integrate import trapezoid
 
 from zoneprofile._validation import InputError
+from zoneprofile.minerals.registry import needs_an as an_needed
 
 __all__ = ["simulate_boundary", "synthetic_boundary_profile"]
 
-SECONDS_PER_DAY = 86400.0
+from zoneprofile._units import SECONDS_PER_DAY  # noqa: E402
 
 
 def _an_function(an, distance_um):
@@ -94,7 +95,7 @@ def simulate_boundary(
     length = hi_x - lo_x
     pad = 2.0 * length if pad_um is None else float(pad_um)
     grid = refined_grid(0.0, hi_x + pad, 0.0, hi_x + 0.05 * length, int(n_cells), growth=1.05)
-    needs_an = "x_an" in law_obj.needs or (mi == "plagioclase" and el in ("Mg", "Sr", "Ba"))
+    needs_an = "x_an" in law_obj.needs or an_needed(el, mi)
     coupling, x_an_cells, ab, reference = None, None, None, {}
     if needs_an:
         if an is None:
@@ -105,7 +106,7 @@ def simulate_boundary(
         xs = grid.faces_um[:-1, None] + sub * grid.widths_um[:, None]
         x_an_cells = trapezoid(f(xs), axis=1) / 20.0 / 100.0  # scipy's: np.trapezoid needs numpy 2
         reference["x_an"] = 0.5 * (f(np.array([boundary_um - 1e-9]))[0] + f(np.array([boundary_um + 1e-9]))[0]) / 100
-        if mi == "plagioclase" and el in ("Mg", "Sr", "Ba"):
+        if an_needed(el, mi):  # An-coupled partitioning
             from zoneprofile.diffusion.partition import partition_parameters
 
             coupling = "an"

@@ -31,10 +31,11 @@ import numpy as np
 
 from zoneprofile._units import format_days, format_days_range
 from zoneprofile.diffusion._optimise import _least_squares, _projected_fit, _refit_projected
+from zoneprofile._api import FitVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["FitResult", "propagate", "PERCENTILES"]
 
-SECONDS_PER_DAY = 86400.0
+from zoneprofile._units import SECONDS_PER_DAY  # noqa: E402
 PERCENTILES = {"p2_5": 2.5, "p16": 16.0, "median": 50.0, "p84": 84.0, "p97_5": 97.5}
 _NODES = np.array([-2.5, -1.25, 1.25, 2.5])
 #: χ² quantile (1 dof, 95 %) an undiffused step must be worse by for a boundary to count as resolved
@@ -42,7 +43,7 @@ _UNDIFFUSED_DCHI2 = 3.84
 
 
 @dataclass
-class FitResult:
+class FitResult(FitVocabulary):
     """One dated boundary. ``to_dict()`` is one entry of FIT.json ``fits[]``."""
 
     boundary_um: float

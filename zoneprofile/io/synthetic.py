@@ -16,6 +16,7 @@ import pandas as pd
 from zoneprofile._output import check_outputs, write_bytes
 from zoneprofile._validation import InputError, require_choice
 from zoneprofile.minerals import feldspar_oxides, olivine_oxides, pyroxene_oxides
+from zoneprofile.minerals.registry import BY_NAME, recalculated_minerals
 
 __all__ = ["synthetic_traverse_table", "DIALECTS", "BAD_KINDS"]
 
@@ -44,15 +45,15 @@ def _oxides_for(mineral: str, comp: dict) -> tuple[pd.DataFrame, np.ndarray, str
         an, or_ = np.broadcast_arrays(np.asarray(comp["an"], float), np.asarray(comp.get("or_", 0.0), float))
         ox = feldspar_oxides(an, or_)
         ox["FeO"] = 0.35
-        return ox, (an if mineral == "plagioclase" else or_), ("An" if mineral == "plagioclase" else "Or")
+        return ox, (an if mineral == "plagioclase" else or_), BY_NAME[mineral].zoning_column
     if mineral == "olivine":
         fo = np.asarray(comp["fo"], float)
         ox = olivine_oxides(fo)
-        return ox, fo, "Fo"
+        return ox, fo, BY_NAME[mineral].zoning_column
     wo, en, fs = (np.asarray(comp[k], float) for k in ("wo", "en", "fs"))
     ox = pyroxene_oxides(wo, en, fs)
     mg = 100 * en / (en + fs)
-    return ox, mg, "Mg_number"
+    return ox, mg, BY_NAME[mineral].zoning_column
 
 
 def _bad_oxides(kind: str, row: pd.Series, rng) -> dict:
@@ -164,7 +165,7 @@ def synthetic_traverse_table(
         Truth in rim-to-core order: ``point``, ``distance_um``, the main
         index (``An``, ``Or``, ``Fo`` or ``Mg_number``), ``bad`` (kind or '').
     """
-    mineral = require_choice(mineral, "mineral", ("plagioclase", "alkali-feldspar", "olivine", "pyroxene"))
+    mineral = require_choice(mineral, "mineral", recalculated_minerals())
     dialect = require_choice(dialect, "dialect", DIALECTS)
     rim = require_choice(rim, "rim", ("start", "end"))
     stage_units = require_choice(stage_units, "stage units", ("mm", "um"))

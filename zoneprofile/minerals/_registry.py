@@ -13,6 +13,7 @@ from zoneprofile._validation import InputError, require_choice
 from zoneprofile.minerals import feldspar, olivine, pyroxene
 from zoneprofile.minerals._formula import oxide_total, total_feo
 from zoneprofile.minerals._qc import merge_qc
+from zoneprofile.minerals.registry import BY_NAME
 
 __all__ = ["Mineral", "MINERALS", "get_mineral", "recalculate"]
 
@@ -36,26 +37,36 @@ class Mineral:
     convention: str = ""  # one line for reports: how iron and the indices are counted
 
 
+def _facts(name: str):
+    """Name and main index of ``name`` from the one mineral table."""
+    m = BY_NAME[name]
+    return m.name, m.zoning_column
+
+
+#: the recalculation recipe of each mineral; its name and main index come
+#: from :mod:`zoneprofile.minerals.registry`
 MINERALS: dict[str, Mineral] = {
     "plagioclase": Mineral(
-        "plagioclase", 8, feldspar.REQUIRED["plagioclase"], feldspar.DEFAULT_QC,
-        partial(feldspar.recalculate, variety="plagioclase"), feldspar.INDICES, "An",
+        _facts("plagioclase")[0], feldspar.OXYGENS, feldspar.REQUIRED["plagioclase"], feldspar.DEFAULT_QC,
+        partial(feldspar.recalculate, variety="plagioclase"), feldspar.INDICES, _facts("plagioclase")[1],
         {"with_ba_sr": False},
         "feldspar on 8 O, all Fe as Fe3+; An = Ca/(Ca+Na+K)",
     ),
     "alkali-feldspar": Mineral(
-        "alkali-feldspar", 8, feldspar.REQUIRED["alkali-feldspar"], feldspar.DEFAULT_QC,
-        partial(feldspar.recalculate, variety="alkali-feldspar"), feldspar.INDICES, "Or",
+        _facts("alkali-feldspar")[0], feldspar.OXYGENS, feldspar.REQUIRED["alkali-feldspar"], feldspar.DEFAULT_QC,
+        partial(feldspar.recalculate, variety="alkali-feldspar"), feldspar.INDICES, _facts("alkali-feldspar")[1],
         {"with_ba_sr": False},
         "feldspar on 8 O, all Fe as Fe3+; Or = K/(Ca+Na+K)",
     ),
     "olivine": Mineral(
-        "olivine", 4, olivine.REQUIRED, olivine.DEFAULT_QC, olivine.recalculate, olivine.INDICES, "Fo",
+        _facts("olivine")[0], olivine.OXYGENS, olivine.REQUIRED, olivine.DEFAULT_QC, olivine.recalculate, olivine.INDICES,
+        _facts("olivine")[1],
         {"fo_with_mn": False},
         "olivine on 4 O, all Fe as Fe2+; Fo = Mg/(Mg+Fe2+)",
     ),
     "pyroxene": Mineral(
-        "pyroxene", 6, pyroxene.REQUIRED, pyroxene.DEFAULT_QC, pyroxene.recalculate, pyroxene.INDICES, "Mg_number",
+        _facts("pyroxene")[0], pyroxene.OXYGENS, pyroxene.REQUIRED, pyroxene.DEFAULT_QC, pyroxene.recalculate, pyroxene.INDICES,
+        _facts("pyroxene")[1],
         {},
         "pyroxene on 6 O, Fe3+ by Droop (1987); Wo-En-Fs after Morimoto (1988) with Fs = Fe2+ + Fe3+ + Mn; "
         "Mg# = Mg/(Mg+Fe total)",

@@ -180,6 +180,9 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
 
     tables = write_tables(records, population, out / "tables")
     doc = results_json(records, population, provenance)
+    from zoneprofile.report.supplement import write_supplement
+
+    tables.append(write_supplement(records, population, doc["provenance"], out / "supplement.xlsx"))
     results = write_json(out / "results.json", doc)
     page = build_html(records, population, doc["provenance"], laws=doc["provenance"]["laws"],
                       crystal_pngs=crystal_pngs, population_pngs=pop_pngs, title=title)

@@ -14,6 +14,7 @@ import math
 import numpy as np
 from scipy.special import erf
 
+from zoneprofile._units import SECONDS_PER_DAY
 from zoneprofile.chronology import crystal_intervals
 
 __all__ = ["sample_records", "sample_provenance"]
@@ -54,7 +55,7 @@ def _record(rng, sample, crystal, *, times_true, n_draws, with_map=False, unreso
     an_levels = [72.0 + rng.normal(0, 1.5), 58.0 + rng.normal(0, 1.5), 50.0 + rng.normal(0, 1.5)]
     an = _step_profile(x, pos, an_levels, [1.0, 1.0]) + rng.normal(0, 0.6, x.size)
     # Mg relaxes with width ~ sqrt(D t): D ~ 1e-16 m2/s gives ~ 3 um in 1 day scale
-    d_um2_day = 1e-16 * 1e12 * 86400.0
+    d_um2_day = 1e-16 * 1e12 * SECONDS_PER_DAY
     widths = [2 * math.sqrt(d_um2_day * t) for t in times_true]
     mg_levels = [520.0, 380.0, 300.0]
     mg_true = _step_profile(x, pos, mg_levels, widths)
@@ -99,7 +100,7 @@ def _record(rng, sample, crystal, *, times_true, n_draws, with_map=False, unreso
             "position_um": p, "kind": "reverse", "element": "Mg", "law": "mg-plag-sample",
             "time_days": {"best": float(t), "median": float(s[2]), "p2_5": float(s[0]), "p16": float(s[1]),
                           "p84": float(s[3]), "p97_5": float(s[4])},
-            "log10_dt_m2": float(math.log10(1e-16 * t * 86400)), "resolved": res,
+            "log10_dt_m2": float(math.log10(1e-16 * t * SECONDS_PER_DAY)), "resolved": res,
             "warnings": [] if res else ["profile not wider than the beam: time is an upper bound"],
             "obliquity_deg": None,
             "curve": {"distance_um": xs.tolist(), "data": mg[sel].tolist(), "model": model.tolist(),

@@ -236,9 +236,9 @@ def _fit_panel(canvas, b, cell):
     px = float(ax.x(position))
     canvas.line([px, px], [y0, y1], COLOURS["grey"], 0.8, dash=":")
     td = b.get("time_days") or {}
-    tag = "≤ " if not b.get("resolved", True) else ""
-    title = (f"{element} at {position:.0f} µm: {tag}{format_days(td.get('median'))}\n"
-             f"95%: {_units.format_days_range(td.get('p2_5'), td.get('p97_5'))}")
+    from zoneprofile.report.timetext import time_title  # a bound reads as a bound, never "≤ median"
+
+    title = time_title(element, position, td, b.get("resolved", True))
     ax.frame(xlabel="distance from rim (µm)", ylabel=f"{element} (ppm)", title=title)
     return entries
 

@@ -22,6 +22,7 @@ from zoneprofile.report.provenance import (
     status_is_confirmed,
 )
 from zoneprofile.report.style import CSS
+from zoneprofile.report.timetext import resolved_text, time_range_text, time_statement
 
 __all__ = ["build_html", "collect_warnings"]
 
@@ -252,12 +253,11 @@ def _crystal_section(k, record, fig_png) -> str:
         rows = []
         for b in bs:
             td = b.get("time_days") or {}
+            ok = b.get("resolved", True)
             rows.append([_e(_fmt_um(b.get("position_um"))), _e(b.get("kind")), _e(b.get("element")),
-                         _e(b.get("law")), _time_cell(td, "best"), _time_cell(td, "median"),
-                         f"{_time_cell(td, 'p16')} – {_time_cell(td, 'p84')}",
-                         f"{_time_cell(td, 'p2_5')} – {_time_cell(td, 'p97_5')}",
-                         "yes" if b.get("resolved", True) else "upper bound",
-                         _num(b.get("obliquity_deg"), 3)])
+                         _e(b.get("law")), _time_cell(td, "best") if ok else "—", _e(time_statement(td, ok)),
+                         _e(time_range_text(td, ok, "p16", "p84")), _e(time_range_text(td, ok)),
+                         _e(resolved_text(td, ok)), _num(b.get("obliquity_deg"), 3)])
         parts.append(_table(["boundary", "kind", "element", "law", "best", "median", "68% range", "95% range",
                              "resolved", "obliquity (°)"], rows))
     from zoneprofile.report._crystal_html import crystal_model_html
@@ -304,19 +304,9 @@ def _laws_section(laws, records, provenance) -> str:
     if params:
         parts.append("<h4>Campaign parameters</h4>")
         parts.append(render_value_html(params))
-    keys = []
-    for r in records:
-        for key, v in (r.get("parameters") or {}).items():
-            if key not in keys:
-                keys.append(key)
-    if keys:
-        rows = []
-        for r in records:
-            p = r.get("parameters") or {}
-            rows.append([_e(r.get("sample")), _e(r.get("crystal")),
-                         *[render_value_html(p.get(key)) if key in p else "" for key in keys]])
-        parts.append("<h4>Parameters per crystal</h4>")
-        parts.append(_table(["sample", "crystal", *keys], rows))
+    from zoneprofile.report.widetables import settings_tables_html  # shared once, the rest split narrow
+
+    parts.append(settings_tables_html(records, table=_table, render=render_value_html, escape=_e))
     return "".join(parts)
 
 
@@ -419,7 +409,9 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     out.append(f'<section id="provenance"><h2>Provenance</h2>{_provenance_section(provenance)}</section>')
     out.append(f'<section id="cite"><h2>How to cite</h2><p>{_e(citation_text(provenance))}</p>'
                "<p>Keep <code>results.json</code> and the <code>tables/</code> folder with the paper's "
-               "supplement: they hold every number shown here and the checksums of the inputs.</p>"
+               "supplement: they hold every number shown here and the checksums of the inputs. "
+               '<a href="supplement.xlsx">supplement.xlsx</a> holds the same tables as one workbook, '
+               "rounded to the digits each uncertainty supports, with units in the header row.</p>"
                f'<div class="caution"><p>{_e(CAUTION)}</p></div></section>')
     out.append("</main></body></html>")
     return "\n".join(out)

@@ -33,7 +33,7 @@ def status_is_confirmed(status) -> bool:
 
 def _law_from_registry(law_id):
     try:
-        from zoneprofile.diffusion import get_law  # the diffusion stage owns the laws
+        from zoneprofile.diffusion.laws import get_law  # the diffusion stage owns the laws
     except Exception:  # noqa: BLE001 - the report must render even without that stage
         return None
     try:

@@ -26,9 +26,12 @@ __all__ = [
 ZONE_COLUMNS = ["sample", "crystal", "mineral", "column", "feature", "start_um", "end_um", "position_um",
                 "mean", "trend_per_um", "before", "after", "change", "kind", "recharge", "width_um",
                 "position_sd_um", "wavelength_um", "amplitude", "p_value", "evidence"]
-FIT_COLUMNS = ["sample", "crystal", "mineral", "position_um", "kind", "element", "law", "temperature_c",
-               "log10_dt_m2", "time_best_days", "time_median_days", "time_p2_5_days", "time_p16_days",
-               "time_p84_days", "time_p97_5_days", "resolved", "obliquity_deg", "warnings"]
+FIT_COLUMNS = ["sample", "crystal", "mineral", "position_um", "fitted_position_um", "kind", "element", "law",
+               "law_status", "partition_model", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
+               "obliquity_deg", "log10_dt_m2_best", "log10_dt_m2_median", "log10_dt_m2_p2_5", "log10_dt_m2_p16",
+               "log10_dt_m2_p84", "log10_dt_m2_p97_5", "statement", "time_best_days", "time_median_days",
+               "time_p2_5_days", "time_p16_days", "time_p84_days", "time_p97_5_days", "time_upper_bound_days",
+               "time_lower_bound_days", "resolved", "warnings"]
 INTERVAL_COLUMNS = ["sample", "crystal", "element", "outer_um", "inner_um", "median_days", "p2_5_days",
                     "p16_days", "p84_days", "p97_5_days", "n_draws", "fraction_negative", "resolved",
                     "warnings"]
@@ -79,21 +82,44 @@ def _temperature(r, b):
     return (r.get("parameters") or {}).get("temperature_c")
 
 
+def _setting(r, b, key):
+    """A fit's setting: the boundary's model set-up first, then the crystal's parameters."""
+    setup = b.get("model_setup") or {}
+    if setup.get(key) is not None:
+        return setup.get(key)
+    return (r.get("parameters") or {}).get(key)
+
+
+def _log10_dt(b) -> dict:
+    """``log10_dt_m2`` as plain columns (a dict of quantiles, or one number in older records)."""
+    v = b.get("log10_dt_m2")
+    if isinstance(v, dict):
+        return {f"log10_dt_m2_{q}": v.get(q) for q in ("best", "median", "p2_5", "p16", "p84", "p97_5")}
+    return {"log10_dt_m2_best": v}
+
+
 def fits_table(records) -> pd.DataFrame:
-    """One row per dated boundary, times in days."""
+    """One row per dated boundary, times in days; bounds, temperature sd, law status and set-up in plain columns."""
     rows = []
     for r in records:
         for b in r.get("boundaries") or []:
             td = b.get("time_days") or {}
+            t_sd = b.get("temperature_sd_c")
             rows.append({
                 "sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
-                "position_um": b.get("position_um"), "kind": b.get("kind"), "element": b.get("element"),
-                "law": b.get("law"), "temperature_c": _temperature(r, b), "log10_dt_m2": b.get("log10_dt_m2"),
+                "position_um": b.get("position_um"), "fitted_position_um": b.get("fitted_position_um"),
+                "kind": b.get("kind"), "element": b.get("element"), "law": b.get("law"),
+                "law_status": b.get("law_status"), "partition_model": _setting(r, b, "partition_model"),
+                "temperature_c": _temperature(r, b),
+                "temperature_sd_c": t_sd if t_sd is not None else (r.get("parameters") or {}).get("temperature_sd_c"),
+                "beam_um": _setting(r, b, "beam_um"), "beam_shape": _setting(r, b, "beam_shape"),
+                "obliquity_deg": b.get("obliquity_deg"), **_log10_dt(b),
+                "statement": td.get("statement") or ("date" if b.get("resolved", True) else None),
                 "time_best_days": td.get("best"), "time_median_days": td.get("median"),
                 "time_p2_5_days": td.get("p2_5"), "time_p16_days": td.get("p16"),
                 "time_p84_days": td.get("p84"), "time_p97_5_days": td.get("p97_5"),
-                "resolved": b.get("resolved"), "obliquity_deg": b.get("obliquity_deg"),
-                "warnings": _join(b.get("warnings")),
+                "time_upper_bound_days": td.get("upper_bound"), "time_lower_bound_days": td.get("lower_bound"),
+                "resolved": b.get("resolved"), "warnings": _join(b.get("warnings")),
             })
     return _frame(rows, FIT_COLUMNS)
 
@@ -167,15 +193,17 @@ def write_tables(records, population, table_dir) -> list[Path]:
     from zoneprofile.report._crystal_table import crystal_model_table
     from zoneprofile.report.ladders import gaps_table, members_table
 
+    from zoneprofile.report.rounding import round_table  # the rounding rule shared with supplement.xlsx
+
     d = Path(table_dir)
     d.mkdir(parents=True, exist_ok=True)
     return [
-        write_table(d / "zones.csv", zones_table(records)),
-        write_table(d / "fits.csv", fits_table(records)),
-        write_table(d / "intervals.csv", intervals_table(records)),
-        write_table(d / "crystals.csv", crystals_table(records)),
-        write_table(d / "events.csv", events_table(population)),
-        write_table(d / "event_members.csv", members_table(population)),
-        write_table(d / "gaps.csv", gaps_table(records, population)),
-        write_table(d / "crystal_model.csv", crystal_model_table(records)),
+        write_table(d / "zones.csv", round_table(zones_table(records))),
+        write_table(d / "fits.csv", round_table(fits_table(records))),
+        write_table(d / "intervals.csv", round_table(intervals_table(records))),
+        write_table(d / "crystals.csv", round_table(crystals_table(records))),
+        write_table(d / "events.csv", round_table(events_table(population))),
+        write_table(d / "event_members.csv", round_table(members_table(population))),
+        write_table(d / "gaps.csv", round_table(gaps_table(records, population))),
+        write_table(d / "crystal_model.csv", round_table(crystal_model_table(records))),
     ]

@@ -3,7 +3,8 @@
 Order of work: noise → steps in wide windows → residuals (those steps and
 per-zone smooth trends removed) → oscillatory bands → steps in short and wide
 windows, of which inside a band only those larger than 1.5 × the band's full swing
-are kept (a band holding two such steps is a staircase and is dropped) → zones → species and mantles → other columns across each
+are kept (a band holding two such steps is a staircase and is dropped) → a
+second look for a thin rim zone (:mod:`zoneprofile.zoning.rim`) → zones → species and mantles → other columns across each
 step (evidence) → melt equivalents and recharge fingerprint → resorption
 surfaces → mixing fractions.
 """
@@ -21,9 +22,11 @@ from zoneprofile.zoning.melt import melt_equivalents, mixing_fraction, recharge_
 from zoneprofile.zoning.noise import estimate_noise_sd
 from zoneprofile.zoning.oscillatory import detect_bands
 from zoneprofile.zoning.resorption import find_resorption_surfaces
+from zoneprofile.zoning.rim import find_rim_step
 from zoneprofile.zoning.species import dominant_species, feldspar_species, species_change
 from zoneprofile.zoning.steps import detect_steps
 from zoneprofile.zoning.stratigraphy import build_zones, zones_table
+from zoneprofile._api import ZoningVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["analyse_zoning", "ZoningResult", "MIN_POINTS", "RANGES"]
 
@@ -34,7 +37,7 @@ RANGES = {c: (0.0, 100.0) for c in ("An", "Ab", "Or", "Fo", "Wo", "En", "Fs", "M
 
 
 @dataclass
-class ZoningResult:
+class ZoningResult(ZoningVocabulary):
     """Everything read from one profile (distances from the rim, µm)."""
 
     column: str
@@ -280,6 +283,11 @@ def analyse_zoning(
         # a "band" holding two or more such steps is a staircase of close steps
         # (its periodicity came from steps the wide windows missed), not an oscillation
         bands = [b for b in bands if sum(b.start_um <= s.position_um <= b.end_um for s in steps) < 2]
+
+    # a second look for a thin rim zone with zoning of its own (steps.py shares one slope across a jump)
+    rim_step = find_rim_step(x, y, sigma, steps, alpha=alpha, min_change=min_change, notes=warnings)
+    if rim_step is not None:
+        steps = sorted(steps + [rim_step], key=lambda s: s.position_um)
 
     spacing = median_spacing(x)
     slopes = [(s.position_um - 0.5 * s.width_um - 0.5 * spacing, s.position_um + 0.5 * s.width_um + 0.5 * spacing)

@@ -31,7 +31,7 @@ __all__ = [
 ]
 
 #: elements with a plagioclase–melt partition model, and oxide → element factors
-#: (element mass fraction of the oxide, from CIAAW 2021 weights via REFERENCES.md §1)
+#: (element mass fraction of the oxide, from CIAAW 2021 weights via docs/references.md §1)
 MELT_ELEMENTS = {"Mg": ("MgO", 24.305 / 40.304), "Sr": ("SrO", 87.62 / 103.619), "Ba": ("BaO", 137.327 / 153.326)}
 
 #: changes of the melt that mark a recharge (Fe via plagioclase FeO as a proxy)

@@ -1,6 +1,6 @@
 """Feldspar species per point and species changes (mantles) across boundaries.
 
-Names follow the usual feldspar classification (REFERENCES.md §2, common
+Names follow the usual feldspar classification (docs/references.md §2, common
 practice): plagioclase by An (mol%) albite 0–10, oligoclase 10–30, andesine
 30–50, labradorite 50–70, bytownite 70–90, anorthite 90–100; alkali feldspar
 when Or is high: sanidine for Or ≥ 37 mol%, anorthoclase for Or 10–37 mol% with

@@ -7,6 +7,8 @@ it here and add it to ``_BUILT_IN``. Nothing is discovered by import side effect
 from __future__ import annotations
 
 from zoneprofile._validation import InputError
+from zoneprofile.minerals.registry import REGISTRY as _MINERAL_TABLE
+from zoneprofile.minerals.registry import datable_elements, law_minerals, mineral_aliases
 from zoneprofile.diffusion.laws._base import DiffusionLaw
 from zoneprofile.diffusion.laws.feldspar import (
     CHERNIAK1996_SR,
@@ -61,42 +63,21 @@ _BUILT_IN = (
 #: id -> law. User laws join through :func:`register_law`.
 LAWS: dict[str, DiffusionLaw] = {law.id: law for law in _BUILT_IN}
 
-#: (element, mineral) -> default law id.
+#: (element, mineral) -> default law id, from the mineral table (zoneprofile/minerals/registry.py).
 DEFAULTS: dict[tuple[str, str], str] = {
-    ("Mg", "plagioclase"): COSTA2003_MG.id,
-    ("Sr", "plagioclase"): ZELLMER1999_SR.id,
-    ("Sr", "alkali-feldspar"): CHERNIAK1996_SR.id,
-    ("Ba", "alkali-feldspar"): CHERNIAK2002_BA.id,
-    ("FeMg", "olivine"): DOHMEN2007_FEMG.id,
-    ("FeMg", "clinopyroxene"): MULLER2013_FEMG_CPX.id,
-    ("Ti", "quartz"): CHERNIAK2007_TI.id,
+    (d.element, m.law_mineral): d.default_law for m in _MINERAL_TABLE for d in m.elements if d.default_law
 }
 
 #: pairs that are known but deliberately have no default, with the reason.
 NO_DEFAULT: dict[tuple[str, str], str] = {
-    ("Ba", "plagioclase"): (
-        "no verified law for Ba in plagioclase is available; choose one explicitly with "
-        "--law (e.g. cherniak2002-ba-sanidine, measured on sanidine, with a warning) or add "
-        "your own from a TOML file"
-    ),
+    (d.element, m.law_mineral): d.no_default for m in _MINERAL_TABLE for d in m.elements if d.no_default
 }
 
-ELEMENTS = ("Mg", "Sr", "Ba", "FeMg", "Ti")
-MINERALS = ("plagioclase", "alkali-feldspar", "olivine", "clinopyroxene", "quartz")
+ELEMENTS = datable_elements()
+MINERALS = law_minerals()
 
 _ELEMENT_ALIASES = {"fe-mg": "FeMg", "fe–mg": "FeMg", "femg": "FeMg", "fe_mg": "FeMg", "mg-fe": "FeMg"}
-_MINERAL_ALIASES = {
-    "plag": "plagioclase",
-    "alkali feldspar": "alkali-feldspar",
-    "alkali_feldspar": "alkali-feldspar",
-    "sanidine": "alkali-feldspar",
-    "anorthoclase": "alkali-feldspar",
-    "ol": "olivine",
-    "pyroxene": "clinopyroxene",
-    "cpx": "clinopyroxene",
-    "qz": "quartz",
-    "qtz": "quartz",
-}
+_MINERAL_ALIASES = mineral_aliases()
 
 
 def normalise_element(element: str) -> str:

@@ -41,13 +41,13 @@ class RunSummary(RunVocabulary):
     notes: list = field(default_factory=list)  # things the user should know about the run itself
     formats: tuple = ("png", "svg")
 
-    @property
     def to_frame(self):
         """One row per crystal (the report's crystals table)."""
         from zoneprofile.report.tables import crystals_table
 
         return crystals_table(self.records)
 
+    @property
     def n_crystals(self) -> int:
         return len(self.records)
 

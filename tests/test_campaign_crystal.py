@@ -37,16 +37,19 @@ def _write(folder, model):
     return path
 
 
-def test_model_key_default_boundary_and_crystal(tmp_path):
+def test_model_key_default_crystal_and_boundary(tmp_path):
     (tmp_path / "a").mkdir()
     (tmp_path / "b").mkdir()
+    (tmp_path / "c").mkdir()
+    assert load_campaign(_write(tmp_path / "c", "boundary")).crystals[0].parameters["model"] == "boundary"
     c = load_campaign(_write(tmp_path / "a", "crystal"))
     assert c.crystals[0].parameters["model"] == "crystal"
     assert "campaign_seed" in c.crystals[0].parameters  # per-sample temperature draws
     text = CAMPAIGN.replace('model = "{model}"\n', "")
     (tmp_path / "b" / "c1.csv").write_text("x\n1\n")
     (tmp_path / "b" / "camp.toml").write_text(text)
-    assert load_campaign(tmp_path / "b" / "camp.toml").crystals[0].parameters["model"] == "boundary"
+    # the default is the whole-crystal model (it met issue 10's recovery and speed goals)
+    assert load_campaign(tmp_path / "b" / "camp.toml").crystals[0].parameters["model"] == "crystal"
 
 
 def test_model_key_bad_value_names_line(tmp_path):

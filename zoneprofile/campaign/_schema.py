@@ -67,7 +67,7 @@ BUILTIN = {
     "fo2_delta_log": 0.0,
     "partition_a_sd_j_mol": None,
     "sheet": None,
-    "model": "boundary",
+    "model": "crystal",  # the whole-crystal model (issue 10 goals met: docs/validation.md)
     "comment": "",
 }
 

@@ -584,6 +584,9 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
                 if o is None:
                     excluded.append({**base, "reason": why})
                     continue
+                sh = b.get("shared_sd_log10")
+                if o["statement"] == "date" and isinstance(sh, (int, float)) and math.isfinite(sh) and sh >= 0:
+                    o["shared_sd_log10"] = float(sh)
                 obs.append({**base, **o, "crystal_key": (sample, crystal), "rank": j})
             continue
         groups = []
@@ -627,6 +630,14 @@ def observations_from_records(records, *, element=None, position_tolerance_um: f
                 excluded.append({**base, "element": "+".join(c[1] for c in cands), "reason": why})
                 continue
             obs.append({**base, **o, "element": el, "crystal_key": (sample, crystal), "rank": j})
+    for o in obs:
+        # crystals are compared on the part of their error they do not share: the sample's temperature
+        # and the law's parameters move every crystal's ages together, so that part cannot tell two
+        # events apart; it is added back to each event's interval
+        sh = o.get("shared_sd_log10")
+        if o["statement"] == "date" and sh:
+            o["sigma_total_log10"] = o["sigma_log10"]
+            o["sigma_log10"] = math.sqrt(max(o["sigma_log10"] ** 2 - sh ** 2, SPREAD_FLOOR ** 2))
     return obs, excluded
 
 

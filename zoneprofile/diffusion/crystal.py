@@ -808,12 +808,16 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         age_j, gap_j, ages_j = b["ages"], b["gaps"], b["draws"]
 
     ages_fit, pos_fit = joint.unpack(xj)
+    # the part of each age's log10 spread that every crystal of the sample shares (its temperature and
+    # law-parameter draws): population events compare crystals with the rest and add this part back
+    f_shared = f_joint if len(elements) > 1 else factors[names[0]][:, None].repeat(n, axis=1)
     record_b = []
     for k in range(n):
         per = {el: by_element[el]["ages"][k] for el in names}
         conc = _concordance({el: (per[el], by_element[el]["draws"][:, k]) for el in names})
         record_b.append({"id": f"B{k + 1}", "position_um": float(pos_fit[k]), "given_position_um": float(pos[k]),
-                         "age_days": age_j[k], "by_element": per, "concordance": conc})
+                         "age_days": age_j[k], "by_element": per, "concordance": conc,
+                         "shared_sd_log10": float(np.std(np.log10(f_shared[:, k])))})
         if conc["status"] == "discordant":
             warnings.append(f"B{k + 1}: the elements' ages disagree beyond their combined 95 % intervals")
     gaps_rec = [{"older": f"B{k + 1}", "younger": f"B{k + 2}", "days": gap_j[k]} for k in range(n - 1)]

@@ -209,7 +209,7 @@ def run(args):
 
     if plot is None:
         _import_lmfit_lean()
-    from zoneprofile.cli._fit_inputs import blank_note, value_source
+    from zoneprofile.cli._fit_inputs import blank_note, censored_note, value_source
 
     header = _header(profile_path)
     ppm_col = None
@@ -243,10 +243,14 @@ def run(args):
                 "give --an-from TABLE, or --an MOL if the crystal is unzoned in An", path=profile_path)
         optional.append("An")
     frame = read_profile(profile_path, columns=(col,), optional=optional, include_flagged=args.include_flagged,
-                         allow_blank=(col,))
+                         allow_blank=(col,), allow_censored=(col,))
+    censored = frame.pop(f"{col}_censored").to_numpy(bool)
     blank = ~np.isfinite(frame[col].to_numpy(float))
+    if censored.any():
+        input_notes.append(censored_note(int(censored.sum()), col))
+    if (blank & ~censored).any():
+        input_notes.append(blank_note(int((blank & ~censored).sum()), col))
     if blank.any():
-        input_notes.append(blank_note(int(blank.sum()), col))
         frame = frame[~blank].reset_index(drop=True)
     if col == "X_Fe":
         _check_column(frame, col, profile_path, low=0.0, high=1.0, what="X_Fe")

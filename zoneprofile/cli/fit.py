@@ -49,7 +49,8 @@ def configure(parser):
                         help="1-sigma of the partition parameter A, J/mol (default: 10%% of |A|, named in the output)")
     parser.add_argument("--boundary-um", type=float, nargs="+", metavar="X",
                         help="boundary position(s), µm from the rim; each is fitted separately and held "
-                             "fixed (default: the largest step, its position fitted)")
+                             "fixed (default: the recharge-like steps the zoning analysis finds, as campaigns "
+                             "do, else the largest step; steps left undated are listed)")
     parser.add_argument("--boundary-window-um", type=float, metavar="W",
                         help="fit each boundary position within ±W µm instead of holding it fixed")
     parser.add_argument("--beam-um", type=float, metavar="W",
@@ -313,16 +314,30 @@ def run(args):
         if b is not None and not distance[0] <= b <= distance[-1]:
             raise InputError(f"boundary {b:g} µm lies outside the profile ({distance[0]:g}–{distance[-1]:g} µm)",
                              path=profile_path, column="distance_um")
+    windows = [args.boundary_window_um] * len(boundaries)
+    positions = [b for b in boundaries if b is not None]
+    plan = None
+    if not args.boundary_um:
+        # without positions: the recharge-like steps the zoning analysis finds, as campaigns (cli/_fit_steps.py)
+        from zoneprofile.cli._fit_steps import plan_steps
+
+        plan = plan_steps(distance, values, mineral=mineral, value_name=ppm_col or (col if col != "X_Fe" else "Fo"),
+                          an=an, an_aligned=an is not None and an_source is None and args.an is None,
+                          temperature_c=args.temperature_c, window_um=args.boundary_window_um)
+        boundaries = [b for b, _ in plan.dated]
+        windows = [w for _, w in plan.dated]
+        positions = plan.positions
+        input_notes = input_notes + plan.notes
     fits = []
     for k, b in enumerate(boundaries):
-        # the other boundaries given are this one's neighbours: the fit keeps them (and any other
-        # step it finds) outside its window, or says the boundary cannot be dated alone
-        neighbours = [o for o in boundaries if o is not None and o != b] or None
+        # the other boundaries given (or steps found) are this one's neighbours: the fit keeps them (and any
+        # other step it finds) outside its window, or says the boundary cannot be dated alone
+        neighbours = [o for o in positions if b is not None and abs(o - b) > 1e-9] or None
         try:
             result = fit_boundary(
                 distance, values, element=element, mineral=mineral, temperature_c=args.temperature_c,
                 temperature_sd_c=args.temperature_sd_c, an=an, an_distance_um=None if an_source is None else an_x,
-                an_beam_um=an_beam, boundary_um=b, boundary_window_um=args.boundary_window_um,
+                an_beam_um=an_beam, boundary_um=b, boundary_window_um=windows[k],
                 neighbours_um=neighbours, beam_um=args.beam_um, beam_shape=args.beam_shape, law=args.law,
                 partition=args.partition, draws=args.draws, seed=args.seed + k,
                 obliquity_deg=args.obliquity_deg, obliquity_sd_deg=args.obliquity_sd_deg, dip_deg=args.dip_deg,
@@ -331,6 +346,12 @@ def run(args):
                 path=path_obj, value_name=ppm_col or (col if col != "X_Fe" else "Fo"), budget=_budget_options(args),
             )
             result.warnings = input_notes + result.warnings
+            if plan is not None and b is None:
+                from zoneprofile.cli._fit_steps import left_after
+
+                left = left_after(plan, [result.boundary_um])
+                if left:
+                    result.warnings.insert(len(input_notes), left)
         except InputError as exc:
             if exc.path is None:
                 raise InputError(exc.message, path=profile_path, row=exc.row, column=exc.column,

@@ -1,0 +1,78 @@
+"""Pitfall warnings of ``fit``: plain words, each once, each with its fix, in the output and FIT.json.
+
+Invented olivine and plagioclase profiles from the project's forward model
+(self-consistency); the size of the pressure effect is checked against the
+Arrhenius factor exp(V·ΔP/RT) written here, with the activation volume of
+7 cm³/mol the law cites (Dohmen & Chakraborty 2007). Run in-process.
+"""
+
+import json
+import math
+import re
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from zoneprofile.cli import main
+from zoneprofile.diffusion import simulate_boundary
+
+R = 8.314462618  # J/(mol K), CODATA 2018
+
+
+@pytest.fixture(scope="module")
+def olivine_csv(tmp_path_factory):
+    x = np.arange(0.0, 160.01, 2.0)
+    fo = simulate_boundary(x, element="FeMg", mineral="olivine", temperature_c=1150, time_days=1.0,
+                           boundary_um=60.0, inner=80.0, outer=86.0, fo2_pa=1e-7, beam_um=2.0)
+    rng = np.random.default_rng(3)
+    path = tmp_path_factory.mktemp("ol") / "ol.csv"
+    pd.DataFrame({"distance_um": x, "Fo": (fo + rng.normal(0, 0.15, x.size)).round(3),
+                  "Fo_sd": 0.15}).to_csv(path, index=False)
+    return path
+
+
+def _run(path, tmp_path, capsys, *extra, name="fit.json"):
+    out = tmp_path / name
+    code = main(["fit", str(path), "--element", "FeMg", "--mineral", "olivine", "--temperature-c", "1150",
+                 "--temperature-sd-c", "10", "--beam-um", "2", "--direction", "[001]", "--boundary-um", "60",
+                 "--draws", "100", "-o", str(out), *extra])
+    printed = capsys.readouterr()
+    assert code == 0, printed.err
+    (fit,) = json.loads(out.read_text())["fits"]
+    return fit, printed.out
+
+
+def test_pressure_default_is_named_with_its_size_and_fix(olivine_csv, tmp_path, capsys):
+    fit, printed = _run(olivine_csv, tmp_path, capsys, "--fo2-pa", "1e-7")
+    notes = [w for w in fit["warnings"] if w.startswith("pressure not given")]
+    assert len(notes) == 1 and printed.count("pressure not given") == 1
+    assert "0.1 MPa" in notes[0] and "--pressure-mpa" in notes[0]
+    factor = float(re.search(r"at 200 MPa the time would be ([0-9.]+)×", notes[0]).group(1))
+    expected = math.exp(7e-6 * (200e6 - 1e5) / (R * (1150 + 273.15)))  # D(0.1 MPa)/D(200 MPa)
+    assert factor == pytest.approx(expected, abs=0.006)  # printed to 2 decimals
+    fit2, printed2 = _run(olivine_csv, tmp_path, capsys, "--fo2-pa", "1e-7", "--pressure-mpa", "200",
+                          name="fit2.json")
+    assert not any("pressure not given" in w for w in fit2["warnings"])
+
+
+def test_fo2_range_warning_says_what_it_means_and_what_to_do(olivine_csv, tmp_path, capsys):
+    # QFM at 1150 °C is above the 1e-5 Pa where the TaMED calibration stops
+    fit, printed = _run(olivine_csv, tmp_path, capsys, "--fo2-buffer", "QFM")
+    notes = [w for w in fit["warnings"] if "outside the calibrated range" in w and w.startswith("fO2")]
+    assert len(notes) == 1 and printed.count("outside the calibrated range") == 1
+    (w,) = notes
+    assert "extrapolated" in w and "less certain" in w and "bias is unknown" in w
+    assert "--fo2-pa within 1e-10–1e-05 Pa" in w and "accept and report" in w
+    fit2, _ = _run(olivine_csv, tmp_path, capsys, "--fo2-pa", "1e-7", name="fit2.json")
+    assert not any("outside the calibrated range" in w for w in fit2["warnings"])
+
+
+def test_unknown_obliquity_says_it_widens_and_how_to_narrow(olivine_csv, tmp_path, capsys):
+    fit, printed = _run(olivine_csv, tmp_path, capsys, "--fo2-pa", "1e-7")
+    notes = [w for w in fit["warnings"] if "section obliquity" in w]
+    assert len(notes) == 1 and printed.count("section obliquity") == 1
+    assert "widens the interval" in notes[0] and "narrows it" in notes[0] and "EBSD" in notes[0]
+    assert "--obliquity-deg" in notes[0]
+    fit2, _ = _run(olivine_csv, tmp_path, capsys, "--fo2-pa", "1e-7", "--obliquity-deg", "10", name="fit2.json")
+    assert not any("widens the interval" in w for w in fit2["warnings"])

@@ -76,3 +76,59 @@ def test_unknown_obliquity_says_it_widens_and_how_to_narrow(olivine_csv, tmp_pat
     assert "--obliquity-deg" in notes[0]
     fit2, _ = _run(olivine_csv, tmp_path, capsys, "--fo2-pa", "1e-7", "--obliquity-deg", "10", name="fit2.json")
     assert not any("widens the interval" in w for w in fit2["warnings"])
+
+
+def _mg_sr_table(tmp_path, t_mg, t_sr):
+    from zoneprofile.diffusion import synthetic_boundary_profile
+
+    kw = dict(seed=2, mineral="plagioclase", temperature_c=1000.0, an_outer=72.0, an_inner=55.0, beam_um=3.0,
+              noise_fraction=0.02)
+    mg, _ = synthetic_boundary_profile(element="Mg", time_days=t_mg, outer=900.0, inner=600.0, **kw)
+    sr, _ = synthetic_boundary_profile(element="Sr", time_days=t_sr, outer=1100.0, inner=800.0, **kw)
+    path = tmp_path / "mgsr.csv"
+    pd.DataFrame({"distance_um": mg["distance_um"], "An": mg["An"], "Mg_ppm": mg["value"],
+                  "Sr_ppm": sr["value"]}).to_csv(path, index=False)
+    return path
+
+
+def _fit_mg_sr(path, tmp_path, capsys):
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg,Sr", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--temperature-sd-c", "10", "--beam-um", "3", "--boundary-um", "40", "--draws", "200",
+                 "-o", str(out)])
+    printed = capsys.readouterr()
+    assert code == 0, printed.err
+    return json.loads(out.read_text()), printed.out
+
+
+def test_two_elements_disagreeing_at_one_boundary_are_flagged_once(tmp_path, capsys):
+    # Mg made 30 d old, Sr 3000 d: growth, not diffusion, would give such a pair
+    doc, printed = _fit_mg_sr(_mg_sr_table(tmp_path, 30.0, 3000.0), tmp_path, capsys)
+    assert [f["element"] for f in doc["fits"]] == ["Mg", "Sr"]
+    mg, sr = doc["fits"]
+    assert mg["time_days"]["p2_5"] <= 30.0 <= mg["time_days"]["p97_5"]
+    assert sr["time_days"]["p2_5"] <= 3000.0 <= sr["time_days"]["p97_5"]
+    (note,) = doc["warnings"]
+    assert note.startswith("growth or diffusion? Sr and Mg date the boundary at 40.0 µm differently")
+    for reason in ("temperature", "non-instant growth", "law", "partitioning", "fix:"):
+        assert reason in note
+    assert printed.count("growth or diffusion?") == 1
+    assert sum(note in f["warnings"] for f in doc["fits"]) == 1
+
+
+def test_two_elements_agreeing_are_not_flagged(tmp_path, capsys):
+    doc, printed = _fit_mg_sr(_mg_sr_table(tmp_path, 300.0, 300.0), tmp_path, capsys)
+    assert len(doc["fits"]) == 2 and doc["warnings"] == []
+    assert "growth or diffusion?" not in printed
+
+
+@pytest.mark.parametrize("extra, words", [(["--element", "Mg,mg"], "twice"),
+                                          (["--element", "Mg,Sr", "--plot", "f.png"], "--plot")])
+def test_several_elements_bad_requests_exit_2_and_write_nothing(tmp_path, capsys, extra, words):
+    path = _mg_sr_table(tmp_path, 30.0, 30.0)
+    out = tmp_path / "fit.json"
+    extra = [e if e != "f.png" else str(tmp_path / "f.png") for e in extra]
+    code = main(["fit", str(path), "--mineral", "plagioclase", "--temperature-c", "1000", "--boundary-um", "40",
+                 "--draws", "50", "-o", str(out), *extra])
+    assert code == 2 and words in capsys.readouterr().err
+    assert not out.exists() and not (tmp_path / "f.png").exists()

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["StepPlan", "left_after", "plan_steps", "undated_note"]
+__all__ = ["StepPlan", "left_after", "plan_steps", "run_several", "undated_note"]
 
 
 class StepPlan:
@@ -90,3 +90,45 @@ def left_after(plan: StepPlan, dated_um) -> str | None:
     left = [s for s in plan.steps if match_position(float(s["position_um"]), list(dated_um),
                                                     sd=s.get("position_sd_um")) is None]
     return undated_note(left) if left else None
+
+
+def run_several(args, names, run_single) -> int:
+    """``fit --element Mg,Sr`` without ``--crystal``: each element fitted on its own, then compared.
+
+    Where two elements date the same boundary and their 95 % intervals are
+    apart, a growth-vs-diffusion warning (:func:`zoneprofile.diffusion._checks.element_disagreement`)
+    is added once, to the first of the two fits, and to FIT.json ``warnings``.
+    """
+    import copy
+
+    from zoneprofile._output import write_json
+    from zoneprofile._validation import InputError
+    from zoneprofile.campaign._boundaries import MATCH_UM
+    from zoneprofile.diffusion._checks import element_disagreement
+    from zoneprofile.diffusion.laws import normalise_element
+
+    if len({normalise_element(n) for n in names}) < len(names):
+        raise InputError(f"--element lists an element twice ({args.element})")
+    if args.plot is not None:
+        raise InputError("--plot draws one element; give one --element for a figure (or use --crystal)")
+    collected = []
+    for name in names:
+        one = copy.copy(args)
+        one.element = name
+        run_single(one, _collect=collected)
+    fits = [f for group, _ in collected for f in group]
+    notes = element_disagreement(fits)
+    for note in notes:
+        x = float(note.split(" at ", 1)[1].split(" µm", 1)[0])
+        for f in fits:  # once: the first fit of the pair, in --element order
+            if abs(float(f.boundary_um) - x) <= MATCH_UM + 0.05 and f.element in note:
+                f.warnings.append(note)
+                break
+    document = collected[0][1]
+    document["fits"] = [f.to_dict() for f in fits]
+    document["input"]["value_column"] = [d["input"]["value_column"] for _, d in collected]
+    document["warnings"] = notes
+    write_json(args.output, document)
+    for f in fits:
+        print(f.report())
+    return 0

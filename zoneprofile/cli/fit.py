@@ -24,7 +24,9 @@ _PLOT_EXT = (".png", ".svg", ".pdf")
 
 def configure(parser):
     parser.add_argument("profile", metavar="PROFILE", help="profile table (CSV/TSV/XLSX) with distance_um")
-    parser.add_argument("--element", required=True, help="Mg, Sr, Ba, FeMg or Ti")
+    parser.add_argument("--element", required=True,
+                        help="Mg, Sr, Ba, FeMg or Ti; several (e.g. Mg,Sr) are fitted separately and compared "
+                             "where they date the same boundary")
     parser.add_argument("--mineral", required=True,
                         help="plagioclase, alkali-feldspar, olivine, clinopyroxene or quartz")
     parser.add_argument("--temperature-c", type=float, required=True, metavar="T",
@@ -147,6 +149,15 @@ def run(args):
         from zoneprofile.cli._fit_crystal import run_crystal
 
         return run_crystal(args)
+    names = [e.strip() for e in str(args.element).split(",") if e.strip()]
+    if len(names) > 1:  # separate fits of each element, compared at shared boundaries
+        from zoneprofile.cli._fit_steps import run_several
+
+        return run_several(args, names, _run_single)
+    return _run_single(args)
+
+
+def _run_single(args, _collect=None):
     import math
     from pathlib import Path
 
@@ -373,6 +384,9 @@ def run(args):
         "caution": ("Diffusion timescales inform, and do not replace, hazard assessment, which belongs to "
                     "the responsible observatory and local authorities."),
     }
+    if _collect is not None:  # several elements: the caller compares, writes and prints
+        _collect.append((fits, document))
+        return 0
     figure = None
     if plot is not None:
         from zoneprofile.diffusion._plot import fit_figure

@@ -26,19 +26,18 @@ import math
 
 import numpy as np
 
-__all__ = ["GROWTH_REASONS", "add_pitfall_warnings", "element_disagreement"]
+__all__ = ["add_pitfall_warnings", "element_disagreement"]
 
 #: example pressure for the size of the pressure effect (MPa; a mid-crustal reservoir, common practice)
 EXAMPLE_PRESSURE_MPA = 200.0
 
-#: why two elements of one boundary can give different times (the crystal model's reasons, in short)
-GROWTH_REASONS = (
-    "the usual reasons: temperature (the elements' laws have different activation energies, so a wrong "
-    "temperature moves them apart), growth not instantaneous (a boundary that grew over time looks "
-    "diffused and makes the faster element look older), the law of one element not holding here, or "
-    "partitioning (the An dependence or the zone's equilibrium with its melt) wrong for one element; "
-    "report the slower element's time as the safer one only after checking these"
-)
+#: why two elements of one boundary can give different times: the crystal model's concordance reasons
+def _growth_reasons() -> str:
+    from zoneprofile.diffusion.crystal import _REASONS
+
+    return ("the usual reasons: " + "; ".join(_REASONS)
+            + "; fix: check the temperature and each law's calibrated range, and state which element's time is "
+              "reported and why (fit --crystal fits both with shared ages and reports their concordance)")
 
 
 def _depends_on_pressure(law) -> float | None:
@@ -143,7 +142,7 @@ def element_disagreement(fits) -> list[str]:
                     f"{float(a.boundary_um):.1f} µm differently: {older.element} "
                     f"{_interval(older)[0]:.3g}–{_interval(older)[1]:.3g} d, {younger.element} "
                     f"{_interval(younger)[0]:.3g}–{_interval(younger)[1]:.3g} d (95 %, intervals apart); "
-                    + GROWTH_REASONS)
+                    + _growth_reasons())
     return out
 
 

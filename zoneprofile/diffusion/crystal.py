@@ -815,7 +815,10 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         record_b.append({"id": f"B{k + 1}", "position_um": float(pos_fit[k]), "given_position_um": float(pos[k]),
                          "age_days": age_j[k], "by_element": per, "concordance": conc})
         if conc["status"] == "discordant":
-            warnings.append(f"B{k + 1}: the elements' ages disagree beyond their combined 95 % intervals")
+            from zoneprofile.diffusion._checks import _growth_reasons
+
+            warnings.append(f"B{k + 1}: growth or diffusion? the elements' ages disagree beyond their combined "
+                            f"95 % intervals; {_growth_reasons()}")
     gaps_rec = [{"older": f"B{k + 1}", "younger": f"B{k + 2}", "days": gap_j[k]} for k in range(n - 1)]
     record = {
         "boundaries": record_b, "gaps": gaps_rec, "elements": names, "temperature_c": t0,

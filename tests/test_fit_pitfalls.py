@@ -105,6 +105,7 @@ def test_two_elements_disagreeing_at_one_boundary_are_flagged_once(tmp_path, cap
     # Mg made 30 d old, Sr 3000 d: growth, not diffusion, would give such a pair
     doc, printed = _fit_mg_sr(_mg_sr_table(tmp_path, 30.0, 3000.0), tmp_path, capsys)
     assert [f["element"] for f in doc["fits"]] == ["Mg", "Sr"]
+    assert doc["input"]["options"]["element"] == "Mg,Sr"
     mg, sr = doc["fits"]
     assert mg["time_days"]["p2_5"] <= 30.0 <= mg["time_days"]["p97_5"]
     assert sr["time_days"]["p2_5"] <= 3000.0 <= sr["time_days"]["p97_5"]
@@ -132,3 +133,10 @@ def test_several_elements_bad_requests_exit_2_and_write_nothing(tmp_path, capsys
                  "--draws", "50", "-o", str(out), *extra])
     assert code == 2 and words in capsys.readouterr().err
     assert not out.exists() and not (tmp_path / "f.png").exists()
+
+
+def test_same_boundary_distance_is_the_campaigns():
+    from zoneprofile.campaign._boundaries import MATCH_UM
+    from zoneprofile.diffusion._checks import SAME_BOUNDARY_UM
+
+    assert SAME_BOUNDARY_UM == MATCH_UM

@@ -127,6 +127,7 @@ def run_several(args, names, run_single) -> int:
     document = collected[0][1]
     document["fits"] = [f.to_dict() for f in fits]
     document["input"]["value_column"] = [d["input"]["value_column"] for _, d in collected]
+    document["input"]["options"]["element"] = args.element
     document["warnings"] = notes
     write_json(args.output, document)
     for f in fits:

@@ -26,16 +26,29 @@ import math
 
 import numpy as np
 
-__all__ = ["add_pitfall_warnings", "element_disagreement"]
+__all__ = ["CONCORDANCE_REASONS", "SAME_BOUNDARY_UM", "add_pitfall_warnings", "element_disagreement"]
 
 #: example pressure for the size of the pressure effect (MPa; a mid-crustal reservoir, common practice)
 EXAMPLE_PRESSURE_MPA = 200.0
 
-#: why two elements of one boundary can give different times: the crystal model's concordance reasons
-def _growth_reasons() -> str:
-    from zoneprofile.diffusion.crystal import _REASONS
+#: two positions date the same boundary when closer than this (µm): the campaign's match distance
+#: (zoneprofile/campaign/_boundaries.py MATCH_UM; tests/test_fit_pitfalls.py keeps them equal)
+SAME_BOUNDARY_UM = 4.0
 
-    return ("the usual reasons: " + "; ".join(_REASONS)
+#: why two elements of one boundary can give different times (the crystal model's concordance uses these too)
+CONCORDANCE_REASONS = [
+    "temperature: the two laws have different activation energies, so a storage temperature off the assumed "
+    "value moves their ages apart",
+    "non-instant growth: a zone that grew over a time comparable to its age makes the faster-diffusing "
+    "element look older",
+    "law: one of the diffusion laws may not hold for this composition or temperature (check its calibrated range)",
+    "partitioning: the An dependence of partitioning (or the zone's equilibrium with its melt) may be wrong "
+    "for one of the elements",
+]
+
+
+def _growth_reasons() -> str:
+    return ("the usual reasons: " + "; ".join(CONCORDANCE_REASONS)
             + "; fix: check the temperature and each law's calibrated range, and state which element's time is "
               "reported and why (fit --crystal fits both with shared ages and reports their concordance)")
 
@@ -125,14 +138,12 @@ def element_disagreement(fits) -> list[str]:
     the 95 % intervals do not overlap (each time outside the other's interval
     and the intervals apart), the plain test a reader can check in the table.
     """
-    from zoneprofile.campaign._boundaries import MATCH_UM
-
     out = []
     items = [f for f in fits if _interval(f) is not None]
     for i in range(len(items)):
         for j in range(i + 1, len(items)):
             a, b = items[i], items[j]
-            if a.element == b.element or abs(float(a.boundary_um) - float(b.boundary_um)) > MATCH_UM:
+            if a.element == b.element or abs(float(a.boundary_um) - float(b.boundary_um)) > SAME_BOUNDARY_UM:
                 continue
             (la, ha), (lb, hb) = _interval(a), _interval(b)
             if la > hb or lb > ha:

@@ -836,15 +836,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
                          by_element_draws={el: by_element[el]["draws"] for el in names})
 
 
-_REASONS = [
-    "temperature: the two laws have different activation energies, so a storage temperature off the assumed "
-    "value moves their ages apart",
-    "non-instant growth: a zone that grew over a time comparable to its age makes the faster-diffusing "
-    "element look older",
-    "law: one of the diffusion laws may not hold for this composition or temperature (check its calibrated range)",
-    "partitioning: the An dependence of partitioning (or the zone's equilibrium with its melt) may be wrong "
-    "for one of the elements",
-]
+from zoneprofile.diffusion._checks import CONCORDANCE_REASONS as _REASONS  # noqa: E402 - shared with fit
 
 
 def _concordance(per):

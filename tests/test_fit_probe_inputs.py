@@ -51,3 +51,39 @@ def test_fit_reads_mgo_wt_percent_and_leaves_out_an_empty_cell(probe_table, tmp_
     assert fit["n_points"] == len(d["distance_um"]) - 1
     # the converted values are the ppm the table was made from (to the 5 decimals written)
     assert np.max(np.abs(np.asarray(fit["points"]["value"]) - np.delete(d["value"], 7))) < 0.1
+
+
+def test_fit_leaves_out_censored_analyses_and_counts_them(probe_table, tmp_path, capsys):
+    """Below-detection marks as ``recalc`` reads them stop no fit; each is left out and counted."""
+    path, d = probe_table
+    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    marks = {12: "<0.01", 30: "bdl", 44: "n.d."}
+    for k, mark in marks.items():
+        frame.loc[k, "MgO"] = mark
+    frame.to_csv(path, index=False)
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--beam-um", "3", "--boundary-um", "40", "--draws", "200", "-o", str(out)])
+    printed = capsys.readouterr()
+    assert code == 0, printed.err
+    fit = json.loads(out.read_text())["fits"][0]
+    warnings = " ".join(fit["warnings"])
+    assert "3 censored analyses left out" in warnings
+    assert "3 censored analyses left out" in printed.out
+    assert "1 point(s) with an empty MgO cell" in warnings  # the blank cell is counted apart
+    assert fit["n_points"] == len(d["distance_um"]) - 4
+    kept = np.delete(d["value"], [7, *marks])
+    assert np.max(np.abs(np.asarray(fit["points"]["value"]) - kept)) < 0.1
+
+
+def test_censored_mark_in_distance_is_still_refused(probe_table, tmp_path, capsys):
+    path, _ = probe_table
+    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    frame.loc[3, "distance_um"] = "bdl"
+    frame.to_csv(path, index=False)
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--boundary-um", "40", "--draws", "50", "-o", str(out)])
+    assert code == 2
+    assert "distance_um" in capsys.readouterr().err
+    assert not out.exists()

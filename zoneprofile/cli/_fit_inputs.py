@@ -9,11 +9,17 @@
 - **Blank cells** in the value column (an analysis below detection, left
   empty, as ``recalc`` passes it) are left out of the fit and counted in a
   warning, never read as zero.
+- **Censored analyses** (``<0.01``, ``bdl``, ``b.d.l.``, ``n.d.``, ``<LOD``,
+  read as :func:`zoneprofile.io.cells.parse_cell` reads them for ``recalc``)
+  are left out the same way and counted in their own warning: a limit is not
+  a measured value, and setting it to zero or to the limit would bend the
+  diffusion profile. A negative number is left as it is (and refused where
+  the column cannot be negative).
 """
 
 from __future__ import annotations
 
-__all__ = ["OXIDE_SOURCES", "oxide_to_ppm_factor", "value_source"]
+__all__ = ["OXIDE_SOURCES", "blank_note", "censored_note", "oxide_to_ppm_factor", "value_source"]
 
 #: element -> oxide column read (wt%) when the ppm column is absent
 OXIDE_SOURCES = {"Mg": "MgO", "Sr": "SrO", "Ba": "BaO"}
@@ -45,3 +51,10 @@ def blank_note(n_blank: int, col: str) -> str | None:
         return None
     return (f"{n_blank} point(s) with an empty {col} cell (below detection or not analysed) were left out of "
             "the fit, not read as zero")
+
+
+def censored_note(n_censored: int, col: str) -> str | None:
+    if not n_censored:
+        return None
+    return (f"{n_censored} censored analyses left out: {col} below detection ('<0.01', 'bdl', 'n.d.', ...) "
+            "is not a measured value; the fit uses the other points (give the value if it was measured)")

@@ -24,7 +24,9 @@ _PLOT_EXT = (".png", ".svg", ".pdf")
 
 def configure(parser):
     parser.add_argument("profile", metavar="PROFILE", help="profile table (CSV/TSV/XLSX) with distance_um")
-    parser.add_argument("--element", required=True, help="Mg, Sr, Ba, FeMg or Ti")
+    parser.add_argument("--element", required=True,
+                        help="Mg, Sr, Ba, FeMg or Ti; several (e.g. Mg,Sr) are fitted separately and compared "
+                             "where they date the same boundary")
     parser.add_argument("--mineral", required=True,
                         help="plagioclase, alkali-feldspar, olivine, clinopyroxene or quartz")
     parser.add_argument("--temperature-c", type=float, required=True, metavar="T",
@@ -49,7 +51,8 @@ def configure(parser):
                         help="1-sigma of the partition parameter A, J/mol (default: 10%% of |A|, named in the output)")
     parser.add_argument("--boundary-um", type=float, nargs="+", metavar="X",
                         help="boundary position(s), µm from the rim; each is fitted separately and held "
-                             "fixed (default: the largest step, its position fitted)")
+                             "fixed (default: the recharge-like steps the zoning analysis finds, as campaigns "
+                             "do, else the largest step; steps left undated are listed)")
     parser.add_argument("--boundary-window-um", type=float, metavar="W",
                         help="fit each boundary position within ±W µm instead of holding it fixed")
     parser.add_argument("--beam-um", type=float, metavar="W",
@@ -146,6 +149,15 @@ def run(args):
         from zoneprofile.cli._fit_crystal import run_crystal
 
         return run_crystal(args)
+    names = [e.strip() for e in str(args.element).split(",") if e.strip()]
+    if len(names) > 1:  # separate fits of each element, compared at shared boundaries
+        from zoneprofile.cli._fit_steps import run_several
+
+        return run_several(args, names, _run_single)
+    return _run_single(args)
+
+
+def _run_single(args, _collect=None):
     import math
     from pathlib import Path
 
@@ -209,7 +221,7 @@ def run(args):
 
     if plot is None:
         _import_lmfit_lean()
-    from zoneprofile.cli._fit_inputs import blank_note, value_source
+    from zoneprofile.cli._fit_inputs import blank_note, censored_note, value_source
 
     header = _header(profile_path)
     ppm_col = None
@@ -243,10 +255,14 @@ def run(args):
                 "give --an-from TABLE, or --an MOL if the crystal is unzoned in An", path=profile_path)
         optional.append("An")
     frame = read_profile(profile_path, columns=(col,), optional=optional, include_flagged=args.include_flagged,
-                         allow_blank=(col,))
+                         allow_blank=(col,), allow_censored=(col,))
+    censored = frame.pop(f"{col}_censored").to_numpy(bool)
     blank = ~np.isfinite(frame[col].to_numpy(float))
+    if censored.any():
+        input_notes.append(censored_note(int(censored.sum()), col))
+    if (blank & ~censored).any():
+        input_notes.append(blank_note(int((blank & ~censored).sum()), col))
     if blank.any():
-        input_notes.append(blank_note(int(blank.sum()), col))
         frame = frame[~blank].reset_index(drop=True)
     if col == "X_Fe":
         _check_column(frame, col, profile_path, low=0.0, high=1.0, what="X_Fe")
@@ -309,16 +325,30 @@ def run(args):
         if b is not None and not distance[0] <= b <= distance[-1]:
             raise InputError(f"boundary {b:g} µm lies outside the profile ({distance[0]:g}–{distance[-1]:g} µm)",
                              path=profile_path, column="distance_um")
+    windows = [args.boundary_window_um] * len(boundaries)
+    positions = [b for b in boundaries if b is not None]
+    plan = None
+    if not args.boundary_um:
+        # without positions: the recharge-like steps the zoning analysis finds, as campaigns (cli/_fit_steps.py)
+        from zoneprofile.cli._fit_steps import plan_steps
+
+        plan = plan_steps(distance, values, mineral=mineral, value_name=ppm_col or (col if col != "X_Fe" else "Fo"),
+                          an=an, an_aligned=an is not None and an_source is None and args.an is None,
+                          temperature_c=args.temperature_c, window_um=args.boundary_window_um)
+        boundaries = [b for b, _ in plan.dated]
+        windows = [w for _, w in plan.dated]
+        positions = plan.positions
+        input_notes = input_notes + plan.notes
     fits = []
     for k, b in enumerate(boundaries):
-        # the other boundaries given are this one's neighbours: the fit keeps them (and any other
-        # step it finds) outside its window, or says the boundary cannot be dated alone
-        neighbours = [o for o in boundaries if o is not None and o != b] or None
+        # the other boundaries given (or steps found) are this one's neighbours: the fit keeps them (and any
+        # other step it finds) outside its window, or says the boundary cannot be dated alone
+        neighbours = [o for o in positions if b is not None and abs(o - b) > 1e-9] or None
         try:
             result = fit_boundary(
                 distance, values, element=element, mineral=mineral, temperature_c=args.temperature_c,
                 temperature_sd_c=args.temperature_sd_c, an=an, an_distance_um=None if an_source is None else an_x,
-                an_beam_um=an_beam, boundary_um=b, boundary_window_um=args.boundary_window_um,
+                an_beam_um=an_beam, boundary_um=b, boundary_window_um=windows[k],
                 neighbours_um=neighbours, beam_um=args.beam_um, beam_shape=args.beam_shape, law=args.law,
                 partition=args.partition, draws=args.draws, seed=args.seed + k,
                 obliquity_deg=args.obliquity_deg, obliquity_sd_deg=args.obliquity_sd_deg, dip_deg=args.dip_deg,
@@ -327,6 +357,12 @@ def run(args):
                 path=path_obj, value_name=ppm_col or (col if col != "X_Fe" else "Fo"), budget=_budget_options(args),
             )
             result.warnings = input_notes + result.warnings
+            if plan is not None and b is None:
+                from zoneprofile.cli._fit_steps import left_after
+
+                left = left_after(plan, [result.boundary_um])
+                if left:
+                    result.warnings.insert(len(input_notes), left)
         except InputError as exc:
             if exc.path is None:
                 raise InputError(exc.message, path=profile_path, row=exc.row, column=exc.column,
@@ -348,6 +384,9 @@ def run(args):
         "caution": ("Diffusion timescales inform, and do not replace, hazard assessment, which belongs to "
                     "the responsible observatory and local authorities."),
     }
+    if _collect is not None:  # several elements: the caller compares, writes and prints
+        _collect.append((fits, document))
+        return 0
     figure = None
     if plot is not None:
         from zoneprofile.diffusion._plot import fit_figure

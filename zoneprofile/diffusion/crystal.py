@@ -819,7 +819,10 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
                          "age_days": age_j[k], "by_element": per, "concordance": conc,
                          "shared_sd_log10": float(np.std(np.log10(f_shared[:, k])))})
         if conc["status"] == "discordant":
-            warnings.append(f"B{k + 1}: the elements' ages disagree beyond their combined 95 % intervals")
+            from zoneprofile.diffusion._checks import _growth_reasons
+
+            warnings.append(f"B{k + 1}: growth or diffusion? the elements' ages disagree beyond their combined "
+                            f"95 % intervals; {_growth_reasons()}")
     gaps_rec = [{"older": f"B{k + 1}", "younger": f"B{k + 2}", "days": gap_j[k]} for k in range(n - 1)]
     record = {
         "boundaries": record_b, "gaps": gaps_rec, "elements": names, "temperature_c": t0,
@@ -837,15 +840,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
                          by_element_draws={el: by_element[el]["draws"] for el in names})
 
 
-_REASONS = [
-    "temperature: the two laws have different activation energies, so a storage temperature off the assumed "
-    "value moves their ages apart",
-    "non-instant growth: a zone that grew over a time comparable to its age makes the faster-diffusing "
-    "element look older",
-    "law: one of the diffusion laws may not hold for this composition or temperature (check its calibrated range)",
-    "partitioning: the An dependence of partitioning (or the zone's equilibrium with its melt) may be wrong "
-    "for one of the elements",
-]
+from zoneprofile.diffusion._checks import CONCORDANCE_REASONS as _REASONS  # noqa: E402 - shared with fit
 
 
 def _concordance(per):

@@ -835,6 +835,12 @@ def _fit_boundary(
         "undiffused_step_delta_chi2": floor_delta_chi2,
         "window": window_entry,
     }
+    if _depth == 0:  # pitfalls in plain words, each with its fix (diffusion/_checks.py)
+        from zoneprofile.diffusion._checks import add_pitfall_warnings
+
+        add_pitfall_warnings(result, law=law_obj, pressure_mpa=pressure_mpa,
+                             temperature_c=t0 if path is None else path.nominal_c,
+                             composition=problem.law_composition(**reference))
     return result
 
 

@@ -99,7 +99,11 @@ def _read_any(path: Path, sheet, header_contains) -> pd.DataFrame:
     return tables.read_sheet_as_text(path, sheet=sheet, header_contains=header_contains)
 
 
-def _to_float(frame: pd.DataFrame, column: str, path: Path, *, allow_blank: bool) -> np.ndarray:
+def _to_float(frame: pd.DataFrame, column: str, path: Path, *, allow_blank: bool,
+              censored: np.ndarray | None = None) -> np.ndarray:
+    """Numbers of one column; with ``censored`` (a bool array), below-detection
+    marks (``<0.01``, ``bdl``, ``n.d.``, ... as :func:`zoneprofile.io.cells.parse_cell`
+    reads them) become NaN and are marked True there instead of stopping the read."""
     out = np.empty(len(frame))
     for k, (cell, row) in enumerate(zip(frame[column], frame["_row"])):
         s = "" if cell is None else str(cell).strip()
@@ -109,6 +113,13 @@ def _to_float(frame: pd.DataFrame, column: str, path: Path, *, allow_blank: bool
                 continue
             raise InputError("empty cell where a number is needed", path=path, row=int(row), column=column)
         x = parse_number(s)
+        if x is None and censored is not None:
+            from zoneprofile.io.cells import parse_cell
+
+            if parse_cell(s).state == "censored":
+                out[k] = np.nan
+                censored[k] = True
+                continue
         if x is None:
             raise InputError("not a number", path=path, row=int(row), column=column, text=s)
         if not np.isfinite(x) or abs(x) > 1e12:
@@ -125,6 +136,7 @@ def read_profile(
     include_flagged: bool = False,
     sheet=None,
     allow_blank=(),
+    allow_censored=(),
 ) -> pd.DataFrame:
     """Read a profile table and check it.
 
@@ -140,6 +152,10 @@ def read_profile(
         Keep points whose ``qc`` is not ``ok`` (default: leave them out).
     allow_blank : sequence of str
         Required columns in which blank cells are allowed (become NaN).
+    allow_censored : sequence of str
+        Required columns in which below-detection marks (``<0.01``, ``bdl``,
+        ``b.d.l.``, ``n.d.``, ``<LOD``) are allowed: they become NaN and a bool
+        column ``<col>_censored`` marks them, so the caller can count them.
 
     Returns
     -------
@@ -173,7 +189,10 @@ def read_profile(
     out = pd.DataFrame({"_row": frame["_row"].astype(int).to_numpy()})
     out["distance_um"] = _to_float(frame, names["distance_um"], p, allow_blank=False)
     for col in columns:
-        out[col] = _to_float(frame, names[col], p, allow_blank=col in allow_blank)
+        mask = np.zeros(len(frame), bool) if col in allow_censored else None
+        out[col] = _to_float(frame, names[col], p, allow_blank=col in allow_blank, censored=mask)
+        if mask is not None:
+            out[f"{col}_censored"] = mask
     for col in optional:
         if col in names and col not in out:
             out[col] = _to_float(frame, names[col], p, allow_blank=True)

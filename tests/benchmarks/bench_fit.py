@@ -246,17 +246,20 @@ def bench_refits():
     kw = dict(element="Mg", mineral="plagioclase", temperature_c=900.0, temperature_sd_c=15.0, an=data["An"],
               beam_um=3.0, boundary_um=40.0, boundary_window_um=3.0)
     seen = {}
+    import zoneprofile.diffusion.fitting as fitting_module
+
     original = unc.propagate
 
     def keep(ctx):
         seen.update(ctx)
         return original(ctx)
 
-    unc.propagate = keep
+    # fitting.py holds its own name for propagate (imported at module level): patch that one
+    fitting_module.propagate = keep
     try:
         fit_boundary(data["distance_um"], data["value"], **kw)
     finally:
-        unc.propagate = original
+        fitting_module.propagate = original
     problem, model, best = seen["problem"], seen["model"], seen["best"]
     lower, upper, vary, w = seen["lower"], seen["upper"], seen["vary"], seen["weights"]
     rng = np.random.default_rng(0)

@@ -13,7 +13,6 @@ to see the traceback of an internal error.
 from __future__ import annotations
 
 import argparse
-import errno
 import functools
 import importlib
 import os
@@ -129,22 +128,13 @@ def _closed_stdout(command) -> int:
 
 def _environment_fault(exc: OSError) -> str | None:
     """One line for a fault of the machine (read-only, full disk, permission), or None."""
-    reason = _ENVIRONMENT_ERRNOS.get(exc.errno)
+    from zoneprofile._outdir import ENVIRONMENT_ERRNOS  # the one table of such faults
+
+    reason = ENVIRONMENT_ERRNOS.get(exc.errno)
     if reason is None:
         return None
     where = exc.filename if exc.filename is not None else "an output file"
     return f"{where}: cannot write: {reason}; free space or choose a writable place for the output"
-
-
-#: errno values that are the machine's fault, not the program's: told as one line, exit code 2.
-_ENVIRONMENT_ERRNOS = {
-    errno.ENOSPC: "no space left on the device",
-    errno.EROFS: "the file system is read-only",
-    errno.EACCES: "permission denied",
-    errno.EPERM: "operation not permitted",
-    getattr(errno, "EDQUOT", -1): "disk quota exceeded",
-    errno.EIO: "input/output error on the device",
-}
 
 
 def _quietly(run):

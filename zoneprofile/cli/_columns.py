@@ -50,3 +50,57 @@ def _check_column(frame, col, path, *, low=0.0, high=None, what="concentration")
         message = f"{what} must be {rng}"
         raise InputError(message, path=path, row=int(frame["_row"].iloc[k]), column=col, text=f"{values[k]:g}")
     return values
+
+
+def read_sd(frame, col, path):
+    """The column's 1-sigma precision ``{col}_sd`` when every point has one (each > 0), else None."""
+    import numpy as np
+
+    from zoneprofile._validation import InputError
+
+    name = f"{col}_sd"
+    if name not in frame or not np.all(np.isfinite(frame[name].to_numpy(float))):
+        return None
+    sd = _check_column(frame, name, path, what="1-sigma precision")
+    if np.any(sd <= 0):
+        k = int(np.flatnonzero(sd <= 0)[0])
+        raise InputError("1-sigma precision must be > 0", path=path, row=int(frame["_row"].iloc[k]), column=name)
+    return sd
+
+
+def read_an(args, frame, profile_path, distance):
+    """An along the profile for An-coupled elements: ``(an, an_x, an_beam_um, an_source)``.
+
+    From ``--an`` (unzoned), ``--an-from`` (another table, shifted by
+    ``--offset-um``; it must overlap the profile) or the profile's own An column
+    (no empty cell; its spot is the profile's unless ``--an-beam-um`` says otherwise).
+    """
+    import hashlib
+
+    import numpy as np
+
+    from zoneprofile._validation import InputError, require_file
+    from zoneprofile.io.profile import read_profile
+
+    an_beam = args.an_beam_um
+    an_source = None
+    if args.an is not None and args.an_from is None:
+        return np.full(distance.size, float(args.an)), distance, an_beam, an_source
+    if args.an_from is not None:
+        an_path = require_file(args.an_from, what="An table")
+        an_frame = read_profile(an_path, columns=("An",), include_flagged=args.include_flagged)
+        an = _check_column(an_frame, "An", an_path, low=0.0, high=100.0, what="An (mol%)")
+        an_x = an_frame["distance_um"].to_numpy(float) + float(args.offset_um)
+        if an_x[-1] < distance[0] or an_x[0] > distance[-1]:
+            raise InputError("the An table does not overlap the profile after --offset-um; check the offset",
+                             path=an_path)
+        an_source = {"path": str(an_path), "sha256": hashlib.sha256(an_path.read_bytes()).hexdigest(),
+                     "offset_um": args.offset_um, "an_beam_um": an_beam}
+        return an, an_x, an_beam, an_source
+    blank = np.flatnonzero(~np.isfinite(frame["An"].to_numpy(float)))
+    if blank.size:
+        k = int(blank[0])
+        raise InputError("empty An cell; An is needed at every point (or use --an-from)",
+                         path=profile_path, row=int(frame["_row"].iloc[k]), column="An")
+    an = _check_column(frame, "An", profile_path, low=0.0, high=100.0, what="An (mol%)")
+    return an, distance, args.beam_um if an_beam is None else an_beam, an_source

@@ -27,7 +27,7 @@ def run_crystal(args):
     from zoneprofile import __version__
     from zoneprofile._output import check_outputs, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
-    from zoneprofile.cli._columns import _check_column, _header, _value_column
+    from zoneprofile.cli._columns import _check_column, _header, _value_column, read_an, read_sd
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.io.profile import read_profile
@@ -96,39 +96,14 @@ def run_crystal(args):
             values = 100.0 * (1.0 - frame[col].to_numpy(float))
         else:
             values = _check_column(frame, col, profile_path, what="concentration")
-        sd = None
-        if f"{col}_sd" in frame and np.all(np.isfinite(frame[f"{col}_sd"].to_numpy(float))):
-            sd = _check_column(frame, f"{col}_sd", profile_path, what="1-sigma precision")
-            if np.any(sd <= 0):
-                k = int(np.flatnonzero(sd <= 0)[0])
-                raise InputError("1-sigma precision must be > 0", path=profile_path,
-                                 row=int(frame["_row"].iloc[k]), column=f"{col}_sd")
+        sd = read_sd(frame, col, profile_path)
         profiles[el] = {"distance_um": distance, "value": values, "sd": sd, "beam_um": args.beam_um,
                         "beam_shape": args.beam_shape}
     an = an_x = None
     an_beam = args.an_beam_um
     an_source = None
     if needs_an:
-        if args.an is not None and args.an_from is None:
-            an, an_x = np.full(distance.size, float(args.an)), distance
-        elif args.an_from is not None:
-            an_path = require_file(args.an_from, what="An table")
-            an_frame = read_profile(an_path, columns=("An",), include_flagged=args.include_flagged)
-            an = _check_column(an_frame, "An", an_path, low=0.0, high=100.0, what="An (mol%)")
-            an_x = an_frame["distance_um"].to_numpy(float) + float(args.offset_um)
-            an_source = {"path": str(an_path), "sha256": hashlib.sha256(an_path.read_bytes()).hexdigest(),
-                         "offset_um": args.offset_um, "an_beam_um": an_beam}
-        else:
-            an_col = frame["An"].to_numpy(float)
-            blank = np.flatnonzero(~np.isfinite(an_col))
-            if blank.size:
-                k = int(blank[0])
-                raise InputError("empty An cell; An is needed at every point (or use --an-from)",
-                                 path=profile_path, row=int(frame["_row"].iloc[k]), column="An")
-            an = _check_column(frame, "An", profile_path, low=0.0, high=100.0, what="An (mol%)")
-            an_x = distance
-            if an_beam is None:
-                an_beam = args.beam_um
+        an, an_x, an_beam, an_source = read_an(args, frame, profile_path, distance)
     positions = sorted((float(b) for b in args.boundary_um), reverse=True)
     for b in positions:
         if not distance[0] < b < distance[-1]:

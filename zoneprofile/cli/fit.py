@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from zoneprofile.cli._columns import _check_column, _header, _value_column  # shared with fit --crystal
+from zoneprofile.cli._columns import _check_column, _header, _value_column, read_an, read_sd  # shared with fit --crystal
 
 DESCRIPTION = """\
 Fit the diffusion equation to one or more zone boundaries of a profile and turn
@@ -158,7 +158,6 @@ def run(args):
 
 
 def _run_single(args, _collect=None):
-    import math
     from pathlib import Path
 
     from zoneprofile import __version__
@@ -274,13 +273,8 @@ def _run_single(args, _collect=None):
     if factor is not None:
         values = values * factor
     distance = frame["distance_um"].to_numpy(float)
-    value_sd = None
-    if f"{col}_sd" in frame and np.all(np.isfinite(frame[f"{col}_sd"].to_numpy(float))):
-        value_sd = _check_column(frame, f"{col}_sd", profile_path, what="1-sigma precision")
-        if np.any(value_sd <= 0):
-            k = int(np.flatnonzero(value_sd <= 0)[0])
-            raise InputError("1-sigma precision must be > 0", path=profile_path,
-                             row=int(frame["_row"].iloc[k]), column=f"{col}_sd")
+    value_sd = read_sd(frame, col, profile_path)
+    if value_sd is not None:
         if col == "X_Fe":
             value_sd = 100.0 * value_sd
         if factor is not None:
@@ -289,30 +283,7 @@ def _run_single(args, _collect=None):
     an_beam = args.an_beam_um
     an_source = None
     if needs_an:
-        if args.an is not None and args.an_from is None:
-            an = np.full(distance.size, float(args.an))
-            an_x = distance
-        elif args.an_from is not None:
-            an_path = require_file(args.an_from, what="An table")
-            an_frame = read_profile(an_path, columns=("An",), include_flagged=args.include_flagged)
-            an = _check_column(an_frame, "An", an_path, low=0.0, high=100.0, what="An (mol%)")
-            an_x = an_frame["distance_um"].to_numpy(float) + float(args.offset_um)
-            if an_x[-1] < distance[0] or an_x[0] > distance[-1]:
-                raise InputError("the An table does not overlap the profile after --offset-um; check the offset",
-                                 path=an_path)
-            an_source = {"path": str(an_path), "sha256": hashlib.sha256(an_path.read_bytes()).hexdigest(),
-                         "offset_um": args.offset_um, "an_beam_um": an_beam}
-        else:
-            an_col = frame["An"].to_numpy(float)
-            blank = np.flatnonzero(~np.isfinite(an_col))
-            if blank.size:
-                k = int(blank[0])
-                raise InputError("empty An cell; An is needed at every point (or use --an-from)",
-                                 path=profile_path, row=int(frame["_row"].iloc[k]), column="An")
-            an = _check_column(frame, "An", profile_path, low=0.0, high=100.0, what="An (mol%)")
-            an_x = distance
-            if an_beam is None:
-                an_beam = args.beam_um
+        an, an_x, an_beam, an_source = read_an(args, frame, profile_path, distance)
     path_obj = None
     if args.cooling_c_per_day is not None:
         require_positive(args.cooling_c_per_day, "--cooling-c-per-day", allow_zero=True)

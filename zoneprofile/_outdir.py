@@ -36,6 +36,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from zoneprofile import __version__
+from zoneprofile._output import replace_folder
 from zoneprofile._paths import reason, shown
 from zoneprofile._validation import InputError
 
@@ -316,13 +317,7 @@ class OutputFolder:
             if not (self.path / MARKER).is_file():  # appeared while we computed (the lock is ours)
                 raise InputError("output folder appeared during the run and holds no earlier zoneprofile "
                                  "output; it was left alone and nothing was written", path=shown(self.path))
-            old = self._parent() / f".{self.path.name}.old"
-            shutil.rmtree(old, ignore_errors=True)
-            os.replace(self.path, old)
-            os.replace(self.tmp, self.path)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(self.tmp, self.path)
+        replace_folder(self.tmp, self.path)
 
 
 def _mtime(path: Path) -> float:

@@ -22,6 +22,7 @@ from zoneprofile._validation import InputError
 
 __all__ = [
     "check_outputs",
+    "replace_folder",
     "write_bytes",
     "write_text",
     "write_json",
@@ -267,12 +268,18 @@ class atomic_folder:
         if exc_type is not None:
             shutil.rmtree(self.tmp, ignore_errors=True)
             return False
-        if self.path.exists():
-            old = self.path.with_name(f".{self.path.name}.old")
-            shutil.rmtree(old, ignore_errors=True)
-            os.replace(self.path, old)
-            os.replace(self.tmp, self.path)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(self.tmp, self.path)
+        replace_folder(self.tmp, self.path)
         return False
+
+
+def replace_folder(tmp: Path, path: Path) -> None:
+    """Put the finished folder ``tmp`` at ``path``: two renames, the earlier folder (if any) moved
+    aside to ``.NAME.old`` first and removed last, so ``path`` never holds a half-written output."""
+    if path.exists():
+        old = path.with_name(f".{path.name}.old")
+        shutil.rmtree(old, ignore_errors=True)
+        os.replace(path, old)
+        os.replace(tmp, path)
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.replace(tmp, path)

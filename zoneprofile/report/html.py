@@ -13,7 +13,7 @@ import math
 from collections import defaultdict
 from pathlib import Path
 
-from zoneprofile.report.figures import format_days
+from zoneprofile._units import format_days
 from zoneprofile.report.provenance import (
     CAUTION,
     citation_text,

@@ -540,7 +540,7 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
 
     out, recs, pop, _ = pop_figures
     root, texts = _svg_texts((out / "events-Mg.svg").read_bytes())
-    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event", "upper bound",
+    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event (band: 95% range)", "upper bound",
                   "time since boundary formed (days, log scale; bars: 95%)"):
         assert label in texts, label
     ns = "{http://www.w3.org/2000/svg}"
@@ -568,10 +568,11 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
     assert sx == pytest.approx(left, abs=0.6) and sx + sw == pytest.approx(right, abs=0.6)
     # ... and the PNG shows it there: light blue inside, not outside
     img = np.asarray(Image.open(io.BytesIO((out / "events-Mg.png").read_bytes())).convert("RGB")).astype(int)
-    row = round(sy + 4)
-    inside = img[row, round((left + right) / 2)]
+    k = 300 / 110  # the PNG is the drawing at 300 dpi; the SVG's units are pixels at 110 per inch
+    row = round((sy + 4) * k)
+    inside = img[row, round((left + right) / 2 * k)]
     assert (abs(inside - [0xD4, 0xE9, 0xF7]) <= 3).all()
-    for x in (round(left) - 4, round(right) + 4):
+    for x in (round(left * k) - 8, round(right * k) + 8):
         assert (abs(img[row, x] - [0xD4, 0xE9, 0xF7]) > 10).any()
 
 

@@ -269,7 +269,7 @@ def _profile_panel(canvas, record, cell):
         entries.append((f"{trace[0][:-4]} (right axis)", {"line": (green, 0.7, "-"), "marker": ("s", 3, green, None)}))
     ax.frame(xlabel=LABELS["distance"], ylabel=_quantity_label(column or "value"),
              title=f"Profile and zoning ({column})")
-    return legend(canvas, entries, centre_x=(x0 + x1) / 2, top=y1 + _BELOW, max_width=right - left - 10,
+    return legend(canvas, entries, centre_x=(left + right) / 2, top=y1 + _BELOW, max_width=right - left - 10,
                   size_pt=7, ncol=3)
 
 
@@ -688,13 +688,28 @@ def _log_limits(*arrays, margin=0.05, fallback=(1.0, 1000.0)):
     return 10.0 ** (a - pad), 10.0 ** (b + pad)
 
 
-def _event_spans(ax, events):
-    """Each event's 95% time range as a light band (drawn first, under the grid and the data)."""
-    for k, e in enumerate(events):
+def _event_fill(events, event_id) -> str:
+    """The shade of an event's 95% range: by its place among all events of the element."""
+    ids = [e.get("id") for e in events]
+    k = ids.index(event_id) if event_id in ids else len(ids)
+    return EVENT_FILLS[k % len(EVENT_FILLS)]
+
+
+def _event_spans(ax, events, every=None):
+    """Each event's 95% time range as a light band (drawn first, under the grid and the data).
+
+    Returns the legend entries of the bands (one per event drawn). ``every``
+    is the element's full event list (the shade follows an event's place in it).
+    """
+    entries = []
+    for e in events:
         lo, hi = e.get("p2_5_days"), e.get("p97_5_days")
         if not lo or not hi or lo <= 0:
             continue
-        ax.vspan(float(lo), float(hi), EVENT_FILLS[k % len(EVENT_FILLS)])
+        fill = _event_fill(every if every is not None else events, e.get("id"))
+        ax.vspan(float(lo), float(hi), fill)
+        entries.append((f"{e.get('id')}: 95% range", {"patch": (fill, 1.0)}))
+    return entries
 
 
 def _event_list(events):
@@ -791,7 +806,7 @@ def _kde_panel(canvas, el_key, block, population, cell):
     l_margin = Axes.left_margin(ylim, _POP_AXES_H)
     ax = Axes(canvas, (left + l_margin, box_top, right - 18, box_top + _POP_AXES_H), xlim, ylim, xlog=True)
     x0, y0, x1, y1 = ax.box
-    _event_spans(ax, events)
+    spans = _event_spans(ax, events)
     ax.grid()
     entries = []
     if kde:
@@ -816,15 +831,16 @@ def _kde_panel(canvas, el_key, block, population, cell):
             if x0 <= px <= x1:
                 canvas.line([px, px], [y0, y1], COLOURS["black"], 0.8, dash="--")
                 canvas.text(px + 3, y0 + 3, str(e["id"]), 7, va="top")
+    entries += spans  # every shading has its legend entry
     ax.frame(xlabel="time since boundary formed (days, log scale)", ylabel="density (per log10 day)",
              title="Kernel density of log10 time")
     return legend(canvas, entries, centre_x=(x0 + x1) / 2, top=y1 + _BELOW, max_width=right - left - 10,
                   size_pt=7, ncol=2)
 
 
-def chronology_canvas(el_key, block, population) -> Canvas:
+def chronology_canvas(el_key, block, population, *, width="double") -> Canvas:
     """The chronology figure of one element: ECDF (left) and kernel density (right), both on log time."""
-    width = DPI * 10.0
+    width = figure_width_px("double")
     canvas = Canvas(width, 1)
     canvas.text(0.02 * width, 14, f"Recharge chronology: {block.get('element') or 'unknown element'}", 11, va="top")
     mid = width / 2
@@ -839,7 +855,7 @@ def _natural(text) -> tuple:
     return tuple((0, int(p), "") if p.isdigit() else (1, 0, p) for p in re.split(r"(\d+)", str(text)) if p)
 
 
-def events_canvas(el_key, block, population) -> Canvas:
+def events_canvas(el_key, block, population, *, width="double") -> Canvas:
     """One row per crystal: each dated boundary's median and 95% range, by event; upper bounds; event bands."""
     rows = [b for b in population.get("boundaries") or [] if _key(b.get("element")) == el_key]
     unres = [u for u in population.get("unresolved") or [] if _key(u.get("element")) == el_key]
@@ -860,15 +876,17 @@ def events_canvas(el_key, block, population) -> Canvas:
         k = ev_index.get(event, len(ev_index))
         styles[event] = (_EVENT_MARKERS[k % 7], _EVENT_COLOURS[k % 7])
         m, c = styles[event]
-        entries.append((str(event) if event is not None else "no event",
-                        {"line": (c, 1.0, "-"), "caps": (c, 1.0), "marker": (m, 5, c, None)}))
+        handle = {"line": (c, 1.0, "-"), "caps": (c, 1.0), "marker": (m, 5, c, None)}
+        if event is not None and any(e.get("id") == event for e in spans):
+            handle["patch"] = (_event_fill(events, event), 1.0)  # the event's shaded 95% range
+        entries.append((str(event) if event is not None else "no event", handle))
     if bounds:
         c, _, m = SERIES["unresolved"]
         entries.append(("upper bound", {"marker": (m, 7, c, None)}))
     size = round(7 * PT)
     legend_w = max((2.8 * size + text_width(label, 7) for label, _ in entries), default=0.0)
-    legend_w = max(legend_w, text_width("event", 8))
-    width = DPI * 8.0
+    legend_w = max(legend_w, text_width("event (band: 95% range)", 8))
+    width = figure_width_px(width)
     pitch = min(0.24 * DPI, max(13.0, (40.0 * DPI - 120.0) / n))  # 0.24 in a row; never below the 7 pt text
     labels = [f"{smp} / {cr}" for smp, cr in keys]
     label_w = max((text_width(t, 7) for t in labels), default=0.0)
@@ -886,7 +904,7 @@ def events_canvas(el_key, block, population) -> Canvas:
                        [e["p97_5_days"] for e in spans])
     ax = Axes(canvas, (box_left, box_top, box_right, box_bottom), xlim, (-0.7, n - 0.3), inverted=True, xlog=True)
     ax.set_ticks("y", np.arange(len(keys)), labels, size_pt=7)
-    _event_spans(ax, spans)
+    _event_spans(ax, spans, events)
     ax.grid()
     ypos = {k: i for i, k in enumerate(keys)}
     cap = 2.0 * PT
@@ -908,7 +926,7 @@ def events_canvas(el_key, block, population) -> Canvas:
              title=f"Dated boundaries and recharge events: {block.get('element') or 'unknown'}")
     if entries:
         lx = box_right + 16
-        canvas.text(lx, box_top, "event", 8, va="top")
+        canvas.text(lx, box_top, "event (band: 95% range)", 8, va="top")
         legend(canvas, entries, centre_x=0.0, left=lx, top=box_top + 8 * PT + 4, max_width=legend_w, size_pt=7,
                ncol=1)
     return canvas
@@ -918,7 +936,7 @@ def _key(element) -> str:
     return "unknown" if element is None else str(element)
 
 
-def render_population_figures(population, fig_dir, *, formats=("png",)) -> dict:
+def render_population_figures(population, fig_dir, *, formats=("png",), width="double") -> dict:
     """Chronology figures per dated element: ECDF + KDE, and the event strip plot.
 
     Drawn on the canvas of :mod:`zoneprofile.report._canvas`; matplotlib is
@@ -936,7 +954,7 @@ def render_population_figures(population, fig_dir, *, formats=("png",)) -> dict:
         name = slug(el_key)
         out[el_key] = {}
         for kind, draw in (("chronology", chronology_canvas), ("events", events_canvas)):
-            canvas = draw(el_key, block, population)
-            out[el_key][kind] = [write_bytes(fig_dir / f"{kind}-{name}.{fmt}", getattr(canvas, fmt)())
+            canvas = draw(el_key, block, population, width=width)
+            out[el_key][kind] = [write_bytes(fig_dir / f"{kind}-{name}.{fmt}", canvas_bytes(canvas, fmt))
                                  for fmt in fmts]
     return out

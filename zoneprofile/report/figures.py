@@ -568,11 +568,14 @@ def zoning_record(result, *, value_sd=None, qc=None, distance_um=None, value=Non
     return {"profile": prof, "zones": result.to_dict(), "boundaries": []}
 
 
-def zoning_canvas(record, *, width="double") -> Canvas:
-    """The ``zones --plot`` figure: the report's profile block of the record."""
+def zoning_canvas(record, *, width="double", title=None) -> Canvas:
+    """The ``zones --plot`` figure: the report's profile block of the record (``title`` above it)."""
     block = profile_block(record, figure_width_px(width))
-    canvas = Canvas(block.width, block.height + _PAD + 6)
-    canvas.place(block, 0, _PAD, name="profile")
+    top = _HEADER if title else _PAD
+    canvas = Canvas(block.width, block.height + top + 6)
+    if title:
+        canvas.text(_PAD, 12, str(title), 10, va="top")
+    canvas.place(block, 0, top, name="profile")
     return canvas
 
 

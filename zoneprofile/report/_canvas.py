@@ -312,6 +312,7 @@ class Canvas:
     """Primitives in pixels (y down); see the module docstring."""
 
     def __init__(self, width: float, height: float):
+        self.exact_width = float(width)  # the print width (PNG at a given dpi, SVG size in points)
         self.width = int(math.ceil(width))
         self.height = int(math.ceil(height))
         self.shapes: list[tuple] = []
@@ -374,6 +375,11 @@ class Canvas:
             dv = first + k * step
             self.texts.append((float(x), float(y), line, size, colour, ha, dv, rotation))
 
+    def _print_width(self) -> float:
+        """Width in pixels at ``DPI`` as asked for (not rounded up to whole pixels)."""
+        w = getattr(self, "exact_width", self.width)
+        return w if abs(w - self.width) < 1 else float(self.width)
+
     # ------------------------------------------------------------- blocks
     def place(self, sub: "Canvas", x: float = 0.0, y: float = 0.0, *, name: str = "block"):
         """Draw another canvas inside this one with its top left at (x, y) (pixels).
@@ -405,7 +411,8 @@ class Canvas:
         out = [
             '<?xml version="1.0" encoding="utf-8" standalone="no"?>\n',
             f'<svg xmlns="http://www.w3.org/2000/svg" xmlns:xlink="http://www.w3.org/1999/xlink" '
-            f'width="{_f(w * 72.0 / DPI)}pt" height="{_f(h * 72.0 / DPI)}pt" viewBox="0 0 {w} {h}" version="1.1">\n',
+            f'width="{_f(self._print_width() * 72.0 / DPI)}pt" height="{_f(h * 72.0 / DPI)}pt" '
+            f'viewBox="0 0 {w} {h}" version="1.1">\n',
             f'<rect x="0" y="0" width="{w}" height="{h}" fill="#ffffff"/>\n',
         ]
         out.extend(self._svg_body([0]))
@@ -489,7 +496,8 @@ class Canvas:
         from PIL import Image, ImageDraw
 
         k = 1.0 if dpi is None else float(dpi) / DPI
-        width, height = max(1, round(self.width * k)), max(1, round(self.height * k))
+        width = self.width if dpi is None else max(1, round(self._print_width() * k))
+        height = max(1, round(self.height * k))
         s = _SS * k
         shapes, texts = self.flat()
         big = Image.new("RGB", (width * _SS, height * _SS), (255, 255, 255))

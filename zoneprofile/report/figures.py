@@ -548,7 +548,7 @@ def boundary_entry(fit, *, value_sd=None, distance_um=None) -> dict:
 def fit_canvas(boundaries, *, width="double") -> Canvas:
     """The ``fit --plot`` figure: the report's fit block for these boundary entries (:func:`boundary_entry`)."""
     block = fits_block(list(boundaries), width)
-    canvas = Canvas(block.width, block.height + _PAD)
+    canvas = Canvas(block.exact_width, block.height + _PAD)
     canvas.place(block, 0, _PAD / 2, name="fits")
     return canvas
 
@@ -572,7 +572,7 @@ def zoning_canvas(record, *, width="double", title=None) -> Canvas:
     """The ``zones --plot`` figure: the report's profile block of the record (``title`` above it)."""
     block = profile_block(record, figure_width_px(width))
     top = _HEADER if title else _PAD
-    canvas = Canvas(block.width, block.height + top + 6)
+    canvas = Canvas(block.exact_width, block.height + top + 6)
     if title:
         canvas.text(_PAD, 12, str(title), 10, va="top")
     canvas.place(block, 0, top, name="profile")

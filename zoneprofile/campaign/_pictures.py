@@ -61,7 +61,7 @@ def render_map(image, line, pixel_um, label) -> bytes:
     return canvas.png()
 
 
-def render_figures(record: dict, formats, *, map_image=None) -> dict:
+def render_figures(record: dict, formats, *, map_image=None, width="double") -> dict:
     """Draw the crystal's report figure here (in the worker); return ``{format: base64 bytes}``.
 
     Figures are drawn with the crystal, in parallel, and cached with its
@@ -85,5 +85,5 @@ def render_figures(record: dict, formats, *, map_image=None) -> dict:
             if not pixel:
                 m["boundaries"] = []
         rec["map"] = m
-    drawn = crystal_figure_bytes(rec, tuple(formats))
+    drawn = crystal_figure_bytes(rec, tuple(formats), width=width)
     return {fmt: base64.b64encode(data).decode("ascii") for fmt, data in drawn.items()}

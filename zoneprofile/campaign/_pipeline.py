@@ -283,7 +283,8 @@ def process_crystal(task: dict) -> dict:
     if formats and (not record.get("error") or record.get("profile")):
         t0 = time.perf_counter()
         try:
-            record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"))
+            record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"),
+                                                width=task.get("figure_width") or "double")
             record["timing_s"]["figure"] = time.perf_counter() - t0
         except (KeyboardInterrupt, SystemExit, MemoryError):
             raise

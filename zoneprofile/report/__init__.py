@@ -102,7 +102,7 @@ def _formats(formats) -> list[str]:
 
 
 def write_outputs(records, population, provenance, out_dir, *, formats=("png", "svg"), title=None,
-                  crystal_figures=None, crystal_formats=None, map_dir=None) -> dict:
+                  crystal_figures=None, crystal_formats=None, map_dir=None, figure_width="double") -> dict:
     """Write the report, results.json, tables and figures into ``out_dir``.
 
     Parameters
@@ -134,6 +134,8 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
         (SVG) of CPU on the development machine.
     map_dir : path-like, optional
         Folder that ``map.image_png`` paths are relative to; default ``out_dir``.
+    figure_width : {"single", "double"}
+        Print width of the figures: one journal column (90 mm) or two (180 mm).
 
     Returns
     -------
@@ -169,10 +171,10 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
                     figures.append(sibling)
             continue
         paths = render_crystal_figure(rec, fig_dir / (crystal_figure_name(rec, k) + ".png"),
-                                      formats=crystal_fmts, map_dir=map_dir)
+                                      formats=crystal_fmts, map_dir=map_dir, width=figure_width)
         figures += paths
         crystal_pngs[k] = next(p for p in paths if p.suffix == ".png")
-    pop = render_population_figures(population, fig_dir, formats=fmts)
+    pop = render_population_figures(population, fig_dir, formats=fmts, width=figure_width)
     pop_pngs = {}
     for el, d in pop.items():
         figures += d["chronology"] + d["events"]

@@ -72,7 +72,8 @@ def render_figures(record: dict, formats, *, map_image=None, width="double") -> 
     """
     from zoneprofile.report.figures import crystal_figure_bytes
 
-    rec = {k: record.get(k) for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries")}
+    rec = {k: record.get(k) for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries", "error",
+                                      "crystal_model")}
     m = record.get("map")
     if isinstance(m, dict):
         m = {k: v for k, v in m.items() if k != "image_png_base64"}

@@ -528,12 +528,12 @@ def boundary_entry(fit, *, value_sd=None, distance_um=None) -> dict:
 
     ``fit`` is a :class:`~zoneprofile.diffusion.FitResult` or its ``to_dict()``
     (a FIT.json ``fits[]`` entry). The curves are merged with the fitted points
-    by the campaign's own code, so ``fit --plot`` draws exactly what the
+    by the code a campaign uses (:mod:`zoneprofile.report._curves`), so ``fit --plot`` draws exactly what the
     report draws for that boundary. ``value_sd`` (1 sd per point, at
     ``distance_um``) adds error bars. Every use of the fit result's fields is
     here (one place to follow a renamed field).
     """
-    from zoneprofile.campaign._pipeline import _merged_curve
+    from zoneprofile.report._curves import merged_curve
 
     d = fit.to_dict() if hasattr(fit, "to_dict") else dict(fit)
     points = dict(d.get("points") or {})
@@ -545,7 +545,7 @@ def boundary_entry(fit, *, value_sd=None, distance_um=None) -> dict:
         points["sd"] = np.where(np.isclose(xs[k], px, rtol=0, atol=1e-9), sds[k], np.nan).tolist()
     return {"element": d.get("element"), "mineral": d.get("mineral"), "position_um": d.get("boundary_um"),
             "time_days": d.get("time_days"), "resolved": d.get("resolved", True),
-            "curve": _merged_curve(d.get("curve") or {}, points)}
+            "curve": merged_curve(d.get("curve") or {}, points)}
 
 
 def fit_canvas(boundaries, *, width="double") -> Canvas:

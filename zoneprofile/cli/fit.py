@@ -341,8 +341,12 @@ def _run_single(args, _collect=None):
             raise
         fits.append(result)
 
+    from zoneprofile.cli._fit_notes import print_shared, take_shared
+
+    shared = [] if _collect is not None else take_shared(fits)  # several elements: taken over all of them
     document = {
         "fits": [r.to_dict() for r in fits],
+        "warnings": shared,
         "input": {
             "profile": str(profile_path),
             "sha256": hashlib.sha256(profile_path.read_bytes()).hexdigest(),
@@ -367,6 +371,7 @@ def _run_single(args, _collect=None):
     write_json(out, document)
     if figure is not None:
         write_bytes(plot, figure)
+    print_shared(shared)
     for r in fits:
         print(r.report())
     return 0

@@ -273,7 +273,7 @@ def _run_single(args, _collect=None):
     if factor is not None:
         values = values * factor
     distance = frame["distance_um"].to_numpy(float)
-    value_sd = read_sd(frame, col, profile_path)
+    value_sd = read_sd(frame, col, profile_path, input_notes)
     if value_sd is not None:
         if col == "X_Fe":
             value_sd = 100.0 * value_sd

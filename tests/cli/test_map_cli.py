@@ -12,7 +12,7 @@ from conftest import run_cli
 from zoneprofile.io import read_profile
 from zoneprofile.maps import synthetic_zoned_map
 
-FIX = Path(__file__).resolve().parent.parent / "fixtures" / "maps"
+FIX = Path(__file__).resolve().parents[2] / "fixtures" / "maps"
 
 
 @pytest.fixture(scope="module")

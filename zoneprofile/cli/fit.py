@@ -124,26 +124,6 @@ def _read_path_table(path):
         raise InputError(exc.message, path=path) from None
 
 
-def _import_lmfit_lean():
-    """Import lmfit in this command's process without its optional matplotlib import.
-
-    lmfit imports matplotlib at start-up only to offer plotting, which this command
-    does not use (its figure is drawn by zoneprofile, and only with --plot). Blocking
-    it for the duration of the import saves about 0.3 s of start-up; the block is
-    lifted at once, so a later ``import matplotlib`` works.
-    """
-    import sys
-
-    if "lmfit" in sys.modules or "matplotlib" in sys.modules:
-        return
-    sys.modules["matplotlib"] = None
-    try:
-        import lmfit  # noqa: F401
-    finally:
-        if sys.modules.get("matplotlib", 0) is None:
-            del sys.modules["matplotlib"]
-
-
 def run(args):
     if getattr(args, "crystal", False):
         from zoneprofile.cli._fit_crystal import run_crystal
@@ -218,8 +198,6 @@ def _run_single(args, _collect=None):
     from zoneprofile.diffusion import LinearCooling, fit_boundary
     from zoneprofile.io.profile import read_profile
 
-    if plot is None:
-        _import_lmfit_lean()
     from zoneprofile.cli._fit_inputs import blank_note, censored_note, value_source
 
     header = _header(profile_path)

@@ -26,7 +26,8 @@ from typing import Literal, NotRequired, TypedDict
 __all__ = [
     "TimeSummary", "FitTime", "Curve", "BoundaryRecord", "Interval", "ZoneStep", "Zone", "ZonesPart",
     "ProfilePart", "TraceProfilePart", "MapBoundary", "MapPart", "ModelChoice", "CrystalModelBoundary",
-    "CrystalModelGap", "CrystalModelPart", "InputFile", "CrystalRecord", "PopulationSummary",
+    "CrystalModelGap", "CrystalModelPart", "InputFile", "CrystalRecord", "PopulationSummary", "PopulationEvent",
+    "ElementEvent", "EventMember",
     "valid_record", "STATEMENTS",
 ]
 
@@ -309,6 +310,73 @@ class CrystalRecord(TypedDict):
     model: ModelChoice | None  # None with model = "boundary"
 
 
+class EventCrystal(TypedDict):
+    sample: str
+    crystal: str
+
+
+class PopulationEvent(TypedDict):
+    """One recharge event of the population (``population["events"]["events"]``,
+    ``event_model.population_events``), oldest first."""
+
+    id: str  # E1, E2, ...
+    age_days: TimeSummary  # the event's age and 95 % interval (days)
+    log10_days: dict  # mean, se, shared_sd, spread, t_quantile (log10 days)
+    weight: float
+    n_boundaries: int
+    n_dated: int
+    n_bounds: int
+    n_crystals: int
+    fraction_of_crystals: float | None  # of the crystals analysed without error
+    by_sample: dict[str, int]  # crystals recording the event, per sample
+    n_analysed_by_sample: dict[str, int]
+    crystals: list[EventCrystal]
+    warnings: list[str]
+
+
+class EventMember(TypedDict):
+    """One boundary placed in the population's events (``population["events"]["members"]``)."""
+
+    sample: str
+    crystal: str
+    boundary: str  # crystal-model id (B1, ...) or "<position> um"
+    position_um: float | None
+    element: str | None
+    source: str  # "crystal model" or "single fit"
+    statement: str  # date, upper_bound, lower_bound, interval
+    time_days: dict
+    probabilities: dict[str, float]  # {event id: probability}
+    event: str | None
+    flags: list[str]
+
+
+class SampleShare(TypedDict):
+    n_crystals: int
+    n_analysed: int
+    fraction: float | None
+
+
+class ElementEvent(TypedDict):
+    """One event of one element's single fits (``population["elements"][el]["events"]``)."""
+
+    id: str  # "<element>-E1", ...
+    element: str | None
+    median_days: float
+    p2_5_days: float
+    p97_5_days: float
+    age_days: TimeSummary
+    basis: str
+    spread_log10: float
+    member_median_range_days: list[float] | None
+    n_boundaries: int
+    n_bounds: int
+    crystals: list[EventCrystal]
+    n_crystals: int
+    fraction_of_crystals: float | None
+    by_sample: dict[str, SampleShare]
+    warnings: list[str]
+
+
 class PopulationSummary(TypedDict):
     """What ``chronology.population_summary`` returns (computed from the records on every run,
     never cached, so not checked by :func:`valid_record`)."""
@@ -318,8 +386,8 @@ class PopulationSummary(TypedDict):
     n_failed: int
     boundaries: list[dict]  # one row per dated boundary: sample, crystal, position_um, element, ...
     unresolved: list[dict]  # boundaries left out of the statistics, with the reason
-    elements: dict  # per element: campaign, samples, events, event_model, event_intervals
-    events: dict  # population_events: the population's events over every crystal
+    elements: dict[str, dict]  # per element: element, campaign, samples, events (ElementEvent), event_model, ...
+    events: dict  # population_events: criterion, k, events (PopulationEvent), members (EventMember), excluded
 
 
 # --------------------------------------------------------------------------- the check
@@ -394,6 +462,6 @@ def valid_record(record) -> bool:
         return False
     if not _crystal_model_ok(record.get("crystal_model")):
         return False
-    if (record.get("model") or {}).get("used") == "crystal" and not record.get("crystal_model"):
+    if record["model"] is not None and record["model"]["used"] == "crystal" and not record.get("crystal_model"):
         return False  # dated by the whole-crystal model, but its result is missing
     return all(record[k].strip() for k in ("sample", "crystal", "mineral"))

@@ -1,6 +1,6 @@
 """The crystal record and its parts are typed (zoneprofile._records) and checked once, on reading the cache.
 
-Records made by the campaign from the invented demo crystals (a traverse with a
+Records made by the campaign from invented demo crystals (a traverse with a
 laser table, and a mapped crystal) must conform to the declared types; a cached
 record whose inner part is damaged (a boundary's time summary, an interval, a
 zoning step, the map's boundaries, ...) must read as absent, so the crystal is
@@ -27,16 +27,17 @@ KEY = "cd" + "1" * 62
 
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
-    """The demo's crystal p03 (traverse and laser table) and m07 (map and laser table), run with
-    model = "crystal" and model = "boundary"."""
+    """The demo's mapped crystal m07 (map and laser table) dated by the whole-crystal model, and its
+    crystal p05 (traverse and laser table) dated boundary by boundary (no figures: records only)."""
     folder = tmp_path_factory.mktemp("records")
-    made = make_demo(folder / "demo", only=("p03", "m07"), draws=50)
-    crystal = execute_campaign(load_campaign(made["campaign"]), progress=False, formats=())
-    text = Path(made["campaign"]).read_text(encoding="utf-8")
-    other = folder / "demo" / "boundary.toml"
+    mapped = make_demo(folder / "mapped", only=("m07",), draws=50)["campaign"]
+    crystal = execute_campaign(load_campaign(mapped), progress=False, formats=())
+    made = make_demo(folder / "traverse", only=("p05",), draws=50)["campaign"]
+    text = Path(made).read_text(encoding="utf-8")
+    other = Path(made).with_name("boundary.toml")
     other.write_text(re.sub(r'model\s*=\s*"crystal"', 'model = "boundary"', text), encoding="utf-8")
     boundary = execute_campaign(load_campaign(other), progress=False, formats=())
-    return {"campaign": made["campaign"], "boundary_campaign": other, "crystal": crystal, "boundary": boundary}
+    return {"boundary_campaign": other, "crystal": crystal, "boundary": boundary}
 
 
 def _records(demo):
@@ -45,7 +46,7 @@ def _records(demo):
 
 def test_fresh_records_have_the_declared_layout(demo):
     records = _records(demo)
-    assert len(records) == 4 and all(r["error"] is None for r in records)
+    assert len(records) == 2 and all(r["error"] is None for r in records)
     assert all(valid_record(r) for r in records)
     # every part the types describe is exercised: boundaries, intervals, map, crystal model
     assert any(r["boundaries"] for r in records) and any(r["recharge_intervals_days"] for r in records)
@@ -114,7 +115,7 @@ def test_a_damaged_part_reads_as_absent(tmp_path, demo, damage):
 
 
 def test_a_damaged_map_part_reads_as_absent(demo):
-    mapped = next(r for r in demo["boundary"].records if r["map"])
+    mapped = next(r for r in demo["crystal"].records if r["map"])
     record = to_jsonable({k: v for k, v in mapped.items() if not k.startswith("_")})
     assert valid_record(record) and record["map"]["boundaries"]
     for damage in (_set(("map", "boundaries", 0, "obliquity_deg"), "12"), _set(("map", "line"), KeyError),
@@ -138,7 +139,7 @@ def test_a_cached_record_with_a_damaged_boundary_is_recomputed_not_reported(demo
     again (and only it) and reports the recomputed record, identical to the first run's."""
     campaign = demo["boundary_campaign"]
     first = execute_campaign(load_campaign(campaign), progress=False, formats=())  # everything from the cache
-    assert first.computed == [] and len(first.from_cache) == 2
+    assert first.computed == [] and len(first.from_cache) == 1
     cache_dir = load_campaign(campaign).cache_dir
     damaged = None
     for path in sorted(cache_dir.glob("??/*.json")):
@@ -152,7 +153,7 @@ def test_a_cached_record_with_a_damaged_boundary_is_recomputed_not_reported(demo
     assert damaged is not None
     again = execute_campaign(load_campaign(campaign), progress=False, formats=())
     labels = [str(c) for c in again.computed]
-    assert len(again.computed) == 1 and damaged.split("/")[1] in labels[0]
+    assert len(again.computed) == 1 and again.from_cache == [] and damaged.split("/")[1] in labels[0]
     by_name = {r["crystal"]: r for r in first.records}
     for r in again.records:
         assert valid_record(r)
@@ -168,3 +169,20 @@ def test_the_record_types_name_each_part_once():
         assert typing.is_typeddict(item), name
     for name in ("profile", "trace_profile", "zones", "map", "crystal_model", "model"):
         assert any(typing.is_typeddict(a) for a in typing.get_args(hints[name])), name
+
+
+def test_the_population_block_has_the_declared_layout(demo):
+    """The report indexes the population's events directly: population_summary must give the
+    keys PopulationEvent, ElementEvent and EventMember declare (after the JSON round trip too)."""
+    from zoneprofile._records import ElementEvent, EventMember, PopulationEvent, _conforms
+    from zoneprofile.chronology import population_summary
+
+    records = _records(demo)
+    pop = json.loads(json.dumps(to_jsonable(population_summary(records, n_bootstrap=10))))
+    events = pop["events"]
+    assert events["events"] and events["members"]
+    assert all(_conforms(e, PopulationEvent) for e in events["events"])
+    assert all(_conforms(m, EventMember) for m in events["members"])
+    element_events = [e for block in pop["elements"].values() for e in block["events"]]
+    assert element_events and all(_conforms(e, ElementEvent) for e in element_events)
+    assert not _conforms({**events["events"][0], "n_crystals": "3"}, PopulationEvent)

@@ -146,7 +146,7 @@ def _partition_models(records) -> dict:
     for r in records:
         for b in r["boundaries"]:
             setup = b["model_setup"]
-            name = setup.get("partition_model") or b.get("partition_model")
+            name = setup.get("partition_model")  # model_setup: the fit's own settings, free-form
             if not name:
                 continue
             entry = {"model": name, "mineral": r["mineral"],

@@ -147,7 +147,7 @@ def _summary_section(records, population) -> str:
     return "".join(parts)
 
 
-def _chronology_section(population, pop_figs, records=()) -> str:
+def _chronology_section(population, pop_figs, records=(), paper=None) -> str:
     parts = []
     settings = population.get("settings") or {}
     parts.append(
@@ -158,6 +158,9 @@ def _chronology_section(population, pop_figs, records=()) -> str:
     from zoneprofile.report.ladders import ladders_html
 
     parts.append(ladders_html(records, population))
+    from zoneprofile.report.population_figures import paper_figures_html
+
+    parts.append(paper_figures_html(paper, _img, _e))
     from zoneprofile.report._crystal_html import per_element_note
 
     parts.append(per_element_note(records))
@@ -329,11 +332,13 @@ def _provenance_section(provenance) -> str:
     return "".join(parts)
 
 
-def build_html(records, population, provenance, *, laws, crystal_pngs, population_pngs, title=None) -> str:
+def build_html(records, population, provenance, *, laws, crystal_pngs, population_pngs, title=None,
+               paper_figures=None) -> str:
     """Assemble the report page.
 
     ``crystal_pngs`` maps the record index to its PNG file (or None);
-    ``population_pngs`` is the dict returned by ``render_population_figures``.
+    ``population_pngs`` is the dict returned by ``render_population_figures``;
+    ``paper_figures`` the files of ``population_figures.render_paper_figures``.
     """
     title = title or (provenance or {}).get("title") or "Recharge chronology report"
     sw = (provenance or {}).get("software") or {}
@@ -358,7 +363,7 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     out.append(f'<section id="caution"><h2>Caution</h2><div class="caution"><p>{_e(CAUTION)}</p></div></section>')
     out.append(f'<section id="summary"><h2>Summary</h2>{_summary_section(records, population)}</section>')
     out.append(f'<section id="chronology"><h2>Recharge chronology</h2>'
-               f"{_chronology_section(population, population_pngs, records)}</section>")
+               f"{_chronology_section(population, population_pngs, records, paper_figures)}</section>")
     iv_rows = _intervals_rows(records)
     from zoneprofile.report._crystal_html import gap_rows
 

@@ -267,7 +267,10 @@ def ladder_figure(records, population, *, width: str = "double") -> LadderFigure
         if labelled else 0.0
     box_left = pad + sample_w + 4 + (crystal_w + 4 if labelled else 0.0) + 3
     box_right = fig_w - pad - 4
-    box_top = pad + 9 * PT + 1 + 6 * PT + 8
+    sub = _wrap(f"{n} crystals in {n_groups} samples, one row each" + ("" if labelled else
+                " (rows too thin for names)") + "; shaded: population events (95% age)", 6.0, fig_w - 2 * pad)
+    canvas.text(pad, pad + 9 * PT + 1, sub, 6.0, va="top", colour="#333333")
+    box_top = pad + 9 * PT + 1 + (sub.count("\n") + 1) * 7.2 * PT + 8
 
     y = 0.0
     rows, separators, group_mid = {}, [], []
@@ -378,14 +381,27 @@ def ladder_figure(records, population, *, width: str = "double") -> LadderFigure
             cv.segments([a + 2, b - 2], [yy - 2 * PT] * 2, [a + 2, b - 2], [yy + 2 * PT] * 2, grey, 0.8)
 
         entries.append(("bounded both ways", both_key))
-    ax.frame(xlabel=_TIME_LABEL, ylabel="", title=None)
-    sub = (f"{n} crystals in {n_groups} samples, one row each"
-           + ("" if labelled else " (rows too thin for names)") + "; shaded: population events (95% age)")
-    canvas.text(pad, pad + 9 * PT + 1, sub, 6.0, va="top", colour="#333333")
-    bottom = _key(canvas, entries, left=pad, top=y1 + 3.5 * PT + 3 + 8 * PT + 5 + 9 * PT + 8,
+    ax.frame(xlabel="", ylabel="", title=None)
+    label_y = y1 + 3.5 * PT + 3 + 8 * PT + 4
+    half = text_width(_TIME_LABEL, 7.5) / 2
+    canvas.text(min(max((x0 + x1) / 2, pad + half), fig_w - pad - half), label_y, _TIME_LABEL, 7.5, ha="center",
+                va="top")
+    bottom = _key(canvas, entries, left=pad, top=label_y + 7.5 * PT + 6,
                   max_width=fig_w - 2 * pad)
     canvas.height = int(math.ceil(bottom + pad))
     return LadderFigure(canvas, ax, rows, n)
+
+
+def _wrap(text, size_pt, width) -> str:
+    """``text`` broken at spaces into lines no wider than ``width`` pixels."""
+    lines = [""]
+    for word in text.split(" "):
+        trial = f"{lines[-1]} {word}".strip()
+        if lines[-1] and text_width(trial, size_pt) > width:
+            lines.append(word)
+        else:
+            lines[-1] = trial
+    return "\n".join(lines)
 
 
 def _short(text, n) -> str:
@@ -532,16 +548,17 @@ def profile_pages(records, population, *, width: str = "double") -> list[Profile
     cell_h = 36 * MM
     pages = []
     n_pages = max(1, math.ceil(len(crystals) / per_page))
+    sub = _wrap("dots: data; vermilion line: best single-boundary fit; dotted lines: dated boundaries by event; "
+                "no line: whole-crystal model (curve not stored)", 5.5, fig_w - 2 * pad)
+    n_sub = sub.count("\n") + 1
     for p in range(n_pages):
         chunk = crystals[p * per_page:(p + 1) * per_page]
         rows_here = max(1, math.ceil(len(chunk) / cols))
-        head = 9 * PT + 8 * PT + 8
+        head = 9 * PT + n_sub * 6.6 * PT + 10
         canvas = Canvas(fig_w, pad + head + rows_here * cell_h + 14 * PT + pad)
         title = "Dated profiles" + (f" (page {p + 1} of {n_pages})" if n_pages > 1 else "")
         canvas.text(pad, pad, title, 8.5, va="top")
-        canvas.text(pad, pad + 9 * PT + 1, "dots: data; vermilion line: best single-boundary fit; dotted lines: "
-                    "dated boundaries by event; no line: whole-crystal model (curve not stored)", 5.5, va="top",
-                    colour="#333333")
+        canvas.text(pad, pad + 9 * PT + 1, sub, 5.5, va="top", colour="#333333")
         page = ProfilePage(canvas, [])
         for k, c in enumerate(chunk):
             r, q = divmod(k, cols)

@@ -26,6 +26,10 @@ from zoneprofile.report.timetext import resolved_text, time_range_text, time_sta
 
 __all__ = ["build_html", "collect_warnings"]
 
+# a long unbroken name (sample, crystal, file path, checksum) may break anywhere inside a table cell, so that
+# no table grows wider than the page (tests/test_browser.py checks this at a 1400 px window)
+_TABLE_CSS = "th,td{overflow-wrap:anywhere}"
+
 
 def _e(x) -> str:
     return html.escape("" if x is None else str(x), quote=True)
@@ -354,7 +358,7 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
            ("laws", "Laws and parameters"), ("provenance", "Provenance"), ("cite", "How to cite")]
     out = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
            '<meta name="viewport" content="width=device-width, initial-scale=1">',
-           f"<title>{_e(title)}</title><style>{CSS}</style></head><body><main>",
+           f"<title>{_e(title)}</title><style>{CSS}{_TABLE_CSS}</style></head><body><main>",
            f"<h1>{_e(title)}</h1>",
            f'<p class="meta">zoneprofile {_e(version or "")}'
            + (f" · run {_e(created)}" if created else "")

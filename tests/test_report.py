@@ -39,7 +39,8 @@ def test_files_written(built):
     n_ok = sum(1 for r in recs if not r["error"])
     for ext in ("png", "svg"):
         # one figure per analysed crystal + chronology + events for the one element
-        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2
+        # + the population's ladders and one page of dated profiles
+        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2 + 2
     assert all((out / f).exists() for f in result["files"])
     assert not list((out / "figures").glob("*.pdf"))  # PDF only on request
 

@@ -136,11 +136,13 @@ def test_constant_an_option(tmp_path):
     path = tmp_path / "p.csv"
     t.to_csv(path, index=False)
     out = tmp_path / "FIT.json"
-    code, _, err = run_cli("fit", path, *SR, "--an", "60", "--beam-um", "3", "--draws", "50", "-o", out)
+    code, printed, err = run_cli("fit", path, *SR, "--an", "60", "--beam-um", "3", "--draws", "50", "-o", out)
     assert code == 0, err
     fit = json.loads(out.read_text())["fits"][0]
     assert fit["model_setup"]["reference_composition"]["x_an"] == pytest.approx(0.6)
     assert fit["resolved"] is False  # a perfectly sharp step: only an upper bound
+    # the budget's spreads of a bound are not read as the bound's uncertainty
+    assert "not a date: these spreads describe the draws, not the bound" in printed
 
 
 def test_flat_profile(tmp_path):

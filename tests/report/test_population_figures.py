@@ -230,6 +230,13 @@ def test_small_multiples_one_panel_per_dated_crystal_in_pages(population):
     assert set(pages[0].crystals) == set(_dated(recs))
     # model curves: every crystal dated by single fits has one; the model-dated crystal has none (caption says so)
     assert pages[0].with_curve == 4
+    # the whole-crystal model's own profile is drawn where its record keeps one
+    with_model = [dict(r) for r in recs]
+    k1 = next(r for r in with_model if r.get("crystal") == "k1")
+    x = np.asarray(k1["profile"]["distance_um"])
+    curve = {"distance_um": x.tolist(), "model": (300 + 200 * np.exp(-x / 40)).tolist()}
+    k1["crystal_model"] = {**k1["crystal_model"], "curves": {"Mg": curve}}
+    assert pf.profile_pages(with_model, pop)[0].with_curve == 5
     titles = [t[2] for t in pages[0].canvas.texts]
     assert "South flank / k1" in titles
     assert any(t.startswith("E1 > ") for t in titles)  # the lower bound in the panel title
@@ -279,3 +286,14 @@ def test_report_embeds_and_lists_the_figures(tmp_path):
     with __import__("PIL.Image").Image.open(io.BytesIO((tmp_path / "figures/ladders.png").read_bytes())) as im:
         # the canvas rounds its width up to a whole pixel at its own resolution: within one such pixel
         assert im.size[0] == pytest.approx(180 / 25.4 * 300, abs=300 / pf.DPI + 1)
+
+
+def test_model_curves_stay_out_of_results_json():
+    from zoneprofile.report import results_json
+
+    rec = _modelled("S", "k1", [300.0, 20.0])
+    rec["crystal_model"]["curves"] = {"Mg": {"distance_um": [0.0, 1.0], "model": [1.0, 2.0]}}
+    doc = results_json([rec], {}, {})
+    assert "curves" not in doc["crystals"][0]["crystal_model"]
+    assert doc["crystals"][0]["crystal_model"]["boundaries"] == rec["crystal_model"]["boundaries"]
+    assert "curves" in rec["crystal_model"]  # the record itself is left as it was

@@ -835,9 +835,24 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
                        "positions; temperature, law parameters and section obliquity by shared draws",
         "timing_s": None,
     }
+    record["curves"] = best_curves(joint, xj)
     record["timing_s"] = _time.perf_counter() - t_start
     return CrystalResult(record=record, joint_x=xj, objective=joint, age_draws_days=ages_j, per_element=per_element,
                          by_element_draws={el: by_element[el]["draws"] for el in names})
+
+
+def best_curves(obj, x) -> dict:
+    """The best fit's profile of each element at its data points: ``{element: {distance_um, model}}``.
+
+    The same prediction the fit's residuals are made of (zone values by least squares given the ages
+    and positions ``x``); kept in the record so that figures can draw the model over the data.
+    """
+    states, _, _ = obj.state(x)
+    out = {}
+    for em, (pred, *_rest) in zip(obj.elements, states):
+        v, _ = obj.solve_values(pred, em.y, em.weights)
+        out[em.element] = {"distance_um": em.x_um.tolist(), "model": (pred.T @ v).tolist()}
+    return out
 
 
 from zoneprofile.diffusion._checks import CONCORDANCE_REASONS as _REASONS  # noqa: E402 - shared with fit

@@ -18,11 +18,9 @@ in the report's palette (:mod:`zoneprofile.report.style`), at a print width
   the event of each boundary the population model's.
 * **dated profiles** (``profiles-N.*``): one small panel per crystal of the
   ladder figure: the dated element along the traverse, the best-fit curve of
-  each single-boundary fit, the boundaries marked by event, and the ages in
-  the panel title. A crystal dated by the whole-crystal model carries no
-  predicted profile in its record, so its panel has data and boundary marks
-  only (said in the caption). Pages of 24 panels (double column) or 10
-  (single column).
+  each single-boundary fit or the whole-crystal model's profile
+  (``crystal_model.curves``), the boundaries marked by event, and the ages in
+  the panel title. Pages of 24 panels (double column) or 10 (single column).
 
 Large populations: rows shrink to fit one page height (crystal names are
 written while a row is at least 7 pt high; below that only the sample names),
@@ -480,6 +478,10 @@ def _profile_panel(canvas, c, box, style):
         return False
     x, v, good, ylabel = series
     curves = []
+    cm_curve = ((rec.get("crystal_model") or {}).get("curves") or {}).get(element) or {}
+    if cm_curve.get("distance_um") is not None and cm_curve.get("model") is not None \
+            and len(cm_curve["distance_um"]) == len(cm_curve["model"]) and len(cm_curve["model"]):
+        curves.append((np.asarray(cm_curve["distance_um"], float), np.asarray(cm_curve["model"], float)))
     for b in rec.get("boundaries") or []:
         cv = b.get("curve") if isinstance(b, dict) else None
         if b.get("element") != element or not cv:
@@ -548,8 +550,8 @@ def profile_pages(records, population, *, width: str = "double") -> list[Profile
     cell_h = 36 * MM
     pages = []
     n_pages = max(1, math.ceil(len(crystals) / per_page))
-    sub = _wrap("dots: data; vermilion line: best single-boundary fit; dotted lines: dated boundaries by event; "
-                "no line: whole-crystal model (curve not stored)", 5.5, fig_w - 2 * pad)
+    sub = _wrap("dots: data; vermilion line: the best fit (whole-crystal model, or each single-boundary fit); "
+                "dotted lines: dated boundaries by event", 5.5, fig_w - 2 * pad)
     n_sub = sub.count("\n") + 1
     for p in range(n_pages):
         chunk = crystals[p * per_page:(p + 1) * per_page]
@@ -700,16 +702,17 @@ def paper_figures_html(paper, img, escape) -> str:
                      f"Print files ({width}): {links(paper.ladders)}."))
     n_pages = len(paper.profiles)
     no_curve = paper.n_crystals - paper.n_with_curve
-    note = (f" {no_curve} crystal(s) dated by the whole-crystal model show data and boundary marks only: the model's "
-            "predicted profile is not kept in the crystal record." if no_curve else "")
+    note = (f" {no_curve} panel(s) show data and boundary marks only: their record keeps no model curve "
+            "(e.g. a crystal model computed before curves were kept)." if no_curve else "")
     more = ""
     if n_pages > 1:
         more = " Further pages: " + "; ".join(f"page {k + 1} ({links(paths)})"
                                                for k, paths in enumerate(paper.profiles) if k) + "."
     parts.append(img(png(paper.profiles[0]), "Dated profiles, small multiples",
                      "One small panel per crystal of the ladder figure, in the same order: the dated element "
-                     "along the traverse (dots; flagged points hollow grey), the best-fit curve of each "
-                     "single-boundary fit (vermilion), the dated boundaries (dotted, coloured and labelled by "
+                     "along the traverse (dots; flagged points hollow grey), the best fit in vermilion (the "
+                     "whole-crystal model's profile over the whole traverse, or the curve of each single-boundary "
+                     "fit over its window), the dated boundaries (dotted, coloured and labelled by "
                      f"event), the ages in the panel title.{escape(note)}"
                      + (f" Page 1 of {n_pages}." if n_pages > 1 else "")
                      + f" Print files ({width}): {links(paper.profiles[0])}.{more}"))

@@ -18,10 +18,10 @@ from __future__ import annotations
 from pathlib import Path
 
 from zoneprofile._output import write_json, write_text
+from zoneprofile._units import format_days  # the one time formatter (re-exported for the report's users)
 from zoneprofile._validation import InputError
 from zoneprofile.report.figures import (
     FIGURE_FORMATS,
-    format_days,
     render_crystal_figure,
     render_population_figures,
     slug,

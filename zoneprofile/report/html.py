@@ -13,7 +13,7 @@ import math
 from collections import defaultdict
 from pathlib import Path
 
-from zoneprofile.report.figures import format_days
+from zoneprofile._units import format_days
 from zoneprofile.report.provenance import (
     CAUTION,
     citation_text,
@@ -252,9 +252,15 @@ def _crystal_section(k, record, fig_png) -> str:
     if fig_png is not None:
         parts.append(_img(fig_png, f"Profile and fits of {name}",
                           "Top: profile with zones shaded, steps (solid: reverse, dotted: normal), "
-                          "resorption surfaces (dash-dot), oscillatory bands (hatched), dated boundaries "
-                          "(triangles); the map where there is one. Below: each dated boundary with data, "
-                          "best fit, initial step and the 95% Monte Carlo band."))
+                          "resorption surfaces (dash-dot; set beside a step at the same place), oscillatory "
+                          "bands (hatched), dated boundaries (triangles); points flagged by QC hollow and grey, "
+                          "never setting the axis range; the map where there is one. Below: each dated "
+                          "boundary with data (bars: ±1 sd where known), best fit, the 95% model band and the "
+                          "model's initial profile (dashed). For Mg, Sr and Ba in plagioclase that initial "
+                          "profile is K(An)·C<sub>melt</sub> at the measured An (Bindeman et al. 1998), so it "
+                          "follows the scatter of the An analyses and shows a narrow spike or dip where the "
+                          "beam-blurred An step and the fitted boundary do not coincide: it is the condition "
+                          "the model started from, not a fitted shape."))
     bs = record.get("boundaries") or []
     if bs:
         rows = []

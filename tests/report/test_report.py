@@ -373,7 +373,7 @@ def test_crystal_figure_shows_every_part_with_units(mapped_record):
     root, texts = _svg_texts(drawn["svg"])
     joined = "\n".join(texts)
     for label in ("distance from rim (µm)", "An (mol%)", "Mg (ppm)", "x (µm)", "y (µm)", "Profile and zoning (An)",
-                  "95% model band", "initial step", "data", "best fit", "traverse (rim → core)", "Map"):
+                  "95% model band", "initial profile (model)", "data", "best fit", "traverse (rim → core)", "Map"):
         assert label in texts, label
     assert joined.count("Mg (ppm)") >= 2 and joined.count(" at ") >= 2  # one panel per fit
     ns = "{http://www.w3.org/2000/svg}"
@@ -381,9 +381,11 @@ def test_crystal_figure_shows_every_part_with_units(mapped_record):
     bands = [p for p in root.iter(f"{ns}path") if p.get("fill-opacity") == "0.35"]
     assert len(bands) >= 2  # a 95% band per fit (plus its legend swatch is a rect)
     zones = [r for r in root.iter(f"{ns}rect") if r.get("fill") in ("#E8F1F8", "#FBF0DC", "#E3F4EE", "#F6E6EF")]
-    assert len(zones) == len(mapped_record["zones"]["zones"])
+    assert len(zones) == len(mapped_record["zones"]["zones"]) + 1  # and the legend's swatch
     png = Image.open(__import__("io").BytesIO(drawn["png"]))
-    assert png.size == (int(root.get("width")[:-2]), int(root.get("height")[:-2]))
+    # the PNG is the SVG's drawing at 300 dpi: its viewBox is in pixels at 110 per inch (report/style.py)
+    vw, vh = (float(v) for v in root.get("viewBox").split()[2:])
+    assert png.size == (round(vw * 300 / 110), round(vh * 300 / 110))
     rgb = np.asarray(png.convert("RGB")).reshape(-1, 3).astype(int)
     for colour in ((213, 94, 0), (0, 114, 178)):  # Okabe & Ito vermilion (fits) and blue (profile)
         assert (abs(rgb - colour).max(axis=1) <= 10).sum() > 50
@@ -541,7 +543,7 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
 
     out, recs, pop, _ = pop_figures
     root, texts = _svg_texts((out / "events-Mg.svg").read_bytes())
-    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event", "upper bound",
+    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event (band: 95% range)", "upper bound",
                   "time since boundary formed (days, log scale; bars: 95%)"):
         assert label in texts, label
     ns = "{http://www.w3.org/2000/svg}"
@@ -569,10 +571,11 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
     assert sx == pytest.approx(left, abs=0.6) and sx + sw == pytest.approx(right, abs=0.6)
     # ... and the PNG shows it there: light blue inside, not outside
     img = np.asarray(Image.open(io.BytesIO((out / "events-Mg.png").read_bytes())).convert("RGB")).astype(int)
-    row = round(sy + 4)
-    inside = img[row, round((left + right) / 2)]
+    k = 300 / 110  # the PNG is the drawing at 300 dpi; the SVG's units are pixels at 110 per inch
+    row = round((sy + 4) * k)
+    inside = img[row, round((left + right) / 2 * k)]
     assert (abs(inside - [0xD4, 0xE9, 0xF7]) <= 3).all()
-    for x in (round(left) - 4, round(right) + 4):
+    for x in (round(left * k) - 8, round(right * k) + 8):
         assert (abs(img[row, x] - [0xD4, 0xE9, 0xF7]) > 10).any()
 
 

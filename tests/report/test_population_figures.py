@@ -261,8 +261,15 @@ def test_print_files_sizes_and_resolution(population, tmp_path):
     assert dpi[0] == pytest.approx(300, abs=0.1) and dpi[1] == pytest.approx(300, abs=0.1)
     assert width_px == pytest.approx(90 / 25.4 * 300, abs=300 / pf.DPI + 1)  # 90 mm at 300 dpi, +- 1 canvas px
     svg = out.ladders[1].read_text()
-    assert re.search(r'width="90\.0\dmm"', svg)
+    width_pt = float(re.search(r'<svg[^>]* width="([\d.]+)pt"', svg).group(1))
+    assert width_pt == pytest.approx(90 / 25.4 * 72, abs=1.0)  # 90 mm in points (1 pt = 1/72 in), +- 0.35 mm
     assert "<text" in svg and "Recharge events" in svg  # text as text
+    # a width that is not a print width is refused before anything is written
+    from zoneprofile._validation import InputError
+
+    with pytest.raises(InputError):
+        pf.render_paper_figures(recs, pop, tmp_path / "bad", width="triple")
+    assert not (tmp_path / "bad").exists()
     # nothing dated: nothing written
     empty = pf.render_paper_figures(recs[-2:], {"events": population_events(recs[-2:])}, tmp_path / "none")
     assert empty.files == [] and not (tmp_path / "none").exists()

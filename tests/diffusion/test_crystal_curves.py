@@ -11,10 +11,16 @@ levels carry the same least-squares precision; 3 % is allowed away from the fitt
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
+from scipy.special import erf
 
 from test_crystal_model import _reference_crystal, _spots, _three_event_case
 from zoneprofile.diffusion.crystal import fit_crystal
+from zoneprofile.diffusion.laws import default_law
+
+DAY = 86400.0
 
 
 def test_stored_curves_follow_the_reference_crystal():
@@ -42,3 +48,26 @@ def test_stored_curves_follow_the_reference_crystal():
         away = np.min(np.abs(xs[:, None] - np.array(positions + fitted)[None, :]), axis=1) > 3.0
         rel = np.abs(np.asarray(c["grown"])[away] - grown_truth[away]) / grown_truth[away]
         assert np.max(rel) < 0.03, (el, float(np.max(rel)))
+
+
+def test_stored_curve_is_the_fit_and_follows_crank():
+    """The curve is the prediction the fit's χ² is made of (evaluated at the analyses: the sum of squared
+    weighted differences equals the record's ``chi2`` when no An is fitted, an invariant), and it follows
+    Crank's (1975, eq. 2.14) erf solution of the noise-free profile to well within the noise (a
+    least-squares curve with 4 free parameters over 119 points has an rms error of about
+    σ·√(4/119) ≈ 0.18 σ; the bound 0.5 σ allows for the model's cell and grid discretisation,
+    common practice)."""
+    law = default_law("Ti", "quartz")
+    dt_um2 = float(law.d_m2_s(850.0)) * 300.0 * DAY * 1e12
+    x = np.arange(0.5, 60.0, 0.5)
+    sd = 0.5
+    truth = 40.0 + 60.0 * 0.5 * (1 + erf((x - 30.0) / (2 * math.sqrt(dt_um2))))
+    y = truth + np.random.default_rng(5).normal(0, sd, x.size)
+    res = fit_crystal({"Ti": {"distance_um": x, "value": y, "sd": np.full(x.size, sd)}}, mineral="quartz",
+                      positions_um=[30.0], temperature_c=850.0, rim="closed", obliquity=None, draws=100, seed=1)
+    rec = res.to_record()
+    at_data = np.asarray(res.objective.curves(res.joint_x, at=x)["Ti"]["model"])
+    assert math.isclose(float(np.sum(((at_data - y) / sd) ** 2)), rec["chi2"], rel_tol=1e-9)
+    stored = rec["curves"]["Ti"]
+    model = np.interp(x, stored["distance_um"], stored["model"])  # 240 positions: linear interpolation
+    assert float(np.sqrt(np.mean((model - truth) ** 2))) < 0.5 * sd

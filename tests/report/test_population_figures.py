@@ -230,6 +230,13 @@ def test_small_multiples_one_panel_per_dated_crystal_in_pages(population):
     assert set(pages[0].crystals) == set(_dated(recs))
     # model curves: every crystal dated by single fits has one; the model-dated crystal has none (caption says so)
     assert pages[0].with_curve == 4
+    # the whole-crystal model's own profile is drawn where its record keeps one
+    with_model = [dict(r) for r in recs]
+    k1 = next(r for r in with_model if r.get("crystal") == "k1")
+    x = np.asarray(k1["profile"]["distance_um"])
+    curve = {"distance_um": x.tolist(), "model": (300 + 200 * np.exp(-x / 40)).tolist()}
+    k1["crystal_model"] = {**k1["crystal_model"], "curves": {"Mg": curve}}
+    assert pf.profile_pages(with_model, pop)[0].with_curve == 5
     titles = [t[2] for t in pages[0].canvas.texts]
     assert "South flank / k1" in titles
     assert any(t.startswith("E1 > ") for t in titles)  # the lower bound in the panel title
@@ -254,8 +261,15 @@ def test_print_files_sizes_and_resolution(population, tmp_path):
     assert dpi[0] == pytest.approx(300, abs=0.1) and dpi[1] == pytest.approx(300, abs=0.1)
     assert width_px == pytest.approx(90 / 25.4 * 300, abs=300 / pf.DPI + 1)  # 90 mm at 300 dpi, +- 1 canvas px
     svg = out.ladders[1].read_text()
-    assert re.search(r'width="90\.0\dmm"', svg)
+    width_pt = float(re.search(r'<svg[^>]* width="([\d.]+)pt"', svg).group(1))
+    assert width_pt == pytest.approx(90 / 25.4 * 72, abs=1.0)  # 90 mm in points (1 pt = 1/72 in), +- 0.35 mm
     assert "<text" in svg and "Recharge events" in svg  # text as text
+    # a width that is not a print width is refused before anything is written
+    from zoneprofile._validation import InputError
+
+    with pytest.raises(InputError):
+        pf.render_paper_figures(recs, pop, tmp_path / "bad", width="triple")
+    assert not (tmp_path / "bad").exists()
     # nothing dated: nothing written
     empty = pf.render_paper_figures(recs[-2:], {"events": population_events(recs[-2:])}, tmp_path / "none")
     assert empty.files == [] and not (tmp_path / "none").exists()
@@ -279,3 +293,14 @@ def test_report_embeds_and_lists_the_figures(tmp_path):
     with __import__("PIL.Image").Image.open(io.BytesIO((tmp_path / "figures/ladders.png").read_bytes())) as im:
         # the canvas rounds its width up to a whole pixel at its own resolution: within one such pixel
         assert im.size[0] == pytest.approx(180 / 25.4 * 300, abs=300 / pf.DPI + 1)
+
+
+def test_model_curves_stay_out_of_results_json():
+    from zoneprofile.report import results_json
+
+    rec = _modelled("S", "k1", [300.0, 20.0])
+    rec["crystal_model"]["curves"] = {"Mg": {"distance_um": [0.0, 1.0], "model": [1.0, 2.0]}}
+    doc = results_json([rec], {}, {})
+    assert "curves" not in doc["crystals"][0]["crystal_model"]
+    assert doc["crystals"][0]["crystal_model"]["boundaries"] == rec["crystal_model"]["boundaries"]
+    assert "curves" in rec["crystal_model"]  # the record itself is left as it was

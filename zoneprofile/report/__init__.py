@@ -66,6 +66,9 @@ def _clean_record(record: dict) -> dict:
         m = {k: v for k, v in m.items() if k != "image"}
         m["image"] = "omitted (array)"
         rec["map"] = m
+    cm = rec.get("crystal_model")
+    if isinstance(cm, dict) and "curves" in cm:  # the model's profiles stay in the cache, as fit curves do
+        rec["crystal_model"] = {k: v for k, v in cm.items() if k != "curves"}
     rec.setdefault("error", None)
     rec.setdefault("recharge_intervals_days", [])
     return rec

@@ -2,8 +2,9 @@
 
 Two figures, drawn on the report's canvas (:mod:`zoneprofile.report._canvas`)
 in the report's palette (:mod:`zoneprofile.report.style`), at a print width
-(single column 90 mm, double column 180 mm), written as PNG at 300 dpi, SVG
-(text kept as text, physical size in mm) and, on request, PDF:
+(single column 90 mm, double column 180 mm), written the figure system's way
+(:func:`zoneprofile.report.figures.canvas_bytes`: PNG at 300 dpi, SVG with its
+size in points and text as text, PDF on request):
 
 * **event ladders** (``ladders.*``): every crystal that has a dated boundary or
   a bound, one row each, grouped by sample (sample names on the left, a thin
@@ -18,11 +19,9 @@ in the report's palette (:mod:`zoneprofile.report.style`), at a print width
   the event of each boundary the population model's.
 * **dated profiles** (``profiles-N.*``): one small panel per crystal of the
   ladder figure: the dated element along the traverse, the best-fit curve of
-  each single-boundary fit, the boundaries marked by event, and the ages in
-  the panel title. A crystal dated by the whole-crystal model carries no
-  predicted profile in its record, so its panel has data and boundary marks
-  only (said in the caption). Pages of 24 panels (double column) or 10
-  (single column).
+  each single-boundary fit or the whole-crystal model's profile
+  (``crystal_model.curves``), the boundaries marked by event, and the ages in
+  the panel title. Pages of 24 panels (double column) or 10 (single column).
 
 Large populations: rows shrink to fit one page height (crystal names are
 written while a row is at least 7 pt high; below that only the sample names),
@@ -39,19 +38,20 @@ from pathlib import Path
 
 import numpy as np
 
+from zoneprofile._limits import FIGURE_PNG_DPI, FIGURE_WIDTH_IN
 from zoneprofile._output import write_bytes
 from zoneprofile._units import format_days
 from zoneprofile.report._canvas import DPI, PT, Axes, Canvas, nice_ticks, text_width, tick_labels
-from zoneprofile.report.style import COLOURS, EVENT_FILLS, SERIES
+from zoneprofile.report.style import COLOURS, EVENT_FILLS, LABELS, SERIES
 
 __all__ = ["WIDTHS_MM", "PRINT_DPI", "PANELS_PER_PAGE", "ladder_crystals", "ladder_figure", "profile_pages",
            "paper_figures_html",
            "render_paper_figures", "PaperFigures"]
 
-#: print widths of a journal figure (mm)
-WIDTHS_MM = {"single": 90.0, "double": 180.0}
-#: resolution of the PNG files (dots per inch; the usual minimum for line art with text in print)
-PRINT_DPI = 300
+#: print widths of a journal figure (mm), as the figure system draws them (``_limits.FIGURE_WIDTH_IN``)
+WIDTHS_MM = {k: round(v * 25.4) for k, v in FIGURE_WIDTH_IN.items()}
+#: resolution of the PNG files (dots per inch), the figure system's
+PRINT_DPI = FIGURE_PNG_DPI
 #: small panels per page of the dated-profiles figure, by width: (columns, rows)
 PANEL_GRID = {"single": (2, 5), "double": (4, 6)}
 PANELS_PER_PAGE = {k: c * r for k, (c, r) in PANEL_GRID.items()}
@@ -67,6 +67,12 @@ _EVENT_MARKERS = ("o", "s", "^", "D", "v", "P", "X")
 _EVENT_COLOURS = (COLOURS["blue"], COLOURS["vermilion"], COLOURS["green"], COLOURS["purple"], COLOURS["orange"],
                   COLOURS["sky"], COLOURS["black"])
 _NO_EVENT = (SERIES["unresolved"][0], "o")
+
+
+def _width_px(width) -> float:
+    from zoneprofile.report.figures import figure_width_px  # checks the choice (single | double)
+
+    return figure_width_px(width)
 
 
 def _natural(text) -> tuple:
@@ -236,7 +242,7 @@ def ladder_figure(records, population, *, width: str = "double") -> LadderFigure
     crystals = ladder_crystals(records, population)
     events = _events(population)
     style = _event_style(events)
-    fig_w = WIDTHS_MM[width] * MM
+    fig_w = _width_px(width)
     canvas = Canvas(fig_w, 1)
     pad = 3 * MM
     n = len(crystals)
@@ -480,6 +486,10 @@ def _profile_panel(canvas, c, box, style):
         return False
     x, v, good, ylabel = series
     curves = []
+    cm_curve = ((rec.get("crystal_model") or {}).get("curves") or {}).get(element) or {}
+    if cm_curve.get("distance_um") is not None and cm_curve.get("model") is not None \
+            and len(cm_curve["distance_um"]) == len(cm_curve["model"]) and len(cm_curve["model"]):
+        curves.append((np.asarray(cm_curve["distance_um"], float), np.asarray(cm_curve["model"], float)))
     for b in rec.get("boundaries") or []:
         cv = b.get("curve") if isinstance(b, dict) else None
         if b.get("element") != element or not cv:
@@ -523,7 +533,7 @@ def _profile_panel(canvas, c, box, style):
     for cx, cm in curves:
         canvas.line(ax.x(cx), ax.y(cm), mc, 1.0)
     ax.frame(xlabel="", ylabel="", title=None)
-    canvas.text((bx0 + bx1) / 2, by1 + 3.5 * PT + 3 + 5.5 * PT + 2, "distance from rim (µm)", 5.5, ha="center",
+    canvas.text((bx0 + bx1) / 2, by1 + 3.5 * PT + 3 + 5.5 * PT + 2, LABELS["distance"], 5.5, ha="center",
                 va="top")
     canvas.text(left + 1, (by0 + by1) / 2, ylabel, 5.5, ha="center", va="top", rotation=90)
     return bool(curves)
@@ -540,16 +550,16 @@ def profile_pages(records, population, *, width: str = "double") -> list[Profile
     """The dated profiles, one small panel per ladder crystal, in pages of :data:`PANELS_PER_PAGE`."""
     crystals = ladder_crystals(records, population)
     style = _event_style(_events(population))
+    fig_w = _width_px(width)
     cols, nrows = PANEL_GRID[width]
     per_page = cols * nrows
-    fig_w = WIDTHS_MM[width] * MM
     pad = 3 * MM
     cell_w = (fig_w - 2 * pad) / cols
     cell_h = 36 * MM
     pages = []
     n_pages = max(1, math.ceil(len(crystals) / per_page))
-    sub = _wrap("dots: data; vermilion line: best single-boundary fit; dotted lines: dated boundaries by event; "
-                "no line: whole-crystal model (curve not stored)", 5.5, fig_w - 2 * pad)
+    sub = _wrap("dots: data; vermilion line: the best fit (whole-crystal model, or each single-boundary fit); "
+                "dotted lines: dated boundaries by event", 5.5, fig_w - 2 * pad)
     n_sub = sub.count("\n") + 1
     for p in range(n_pages):
         chunk = crystals[p * per_page:(p + 1) * per_page]
@@ -574,69 +584,11 @@ def profile_pages(records, population, *, width: str = "double") -> list[Profile
 
 
 # --------------------------------------------------------------------------- output
-def _print_png(canvas: Canvas, dpi: int = PRINT_DPI) -> bytes:
-    """PNG of the drawing at ``dpi`` (the canvas draws at :data:`DPI`): every primitive scaled, then a pHYs chunk."""
-    f = dpi / DPI
-    big = canvas if abs(f - 1) < 1e-9 else _scaled(canvas, f)
-    return _with_dpi(big.png(), dpi)
-
-
-def _scaled(canvas: Canvas, f: float) -> Canvas:
-    out = Canvas(canvas.width * f, canvas.height * f)
-    for op in canvas.shapes:
-        kind = op[0]
-        if kind == "line":
-            _, xs, ys, colour, lw, dash, alpha = op
-            out.shapes.append((kind, xs * f, ys * f, colour, lw * f, dash, alpha))
-        elif kind == "segments":
-            _, a, colour, lw, alpha = op
-            out.shapes.append((kind, a * f, colour, lw * f, alpha))
-        elif kind == "polygon":
-            _, xs, ys, colour, alpha = op
-            out.shapes.append((kind, xs * f, ys * f, colour, alpha))
-        elif kind == "rect":
-            _, x0, y0, x1, y1, fill, edge, lw, hatch, alpha = op
-            out.shapes.append((kind, x0 * f, y0 * f, x1 * f, y1 * f, fill, edge, lw * f, hatch, alpha))
-        elif kind == "markers":
-            _, xs, ys, shape, size_pt, face, edge, alpha = op
-            rim = 0.0 if edge or shape == "x" else 1.0  # the canvas adds a 1 pt rim to edgeless markers
-            out.shapes.append((kind, xs * f, ys * f, shape, (size_pt + rim) * f - rim, face, edge, alpha))
-        elif kind == "image":
-            _, rgba, x0, y0, x1, y1 = op
-            out.shapes.append((kind, rgba, x0 * f, y0 * f, x1 * f, y1 * f))
-        else:  # a primitive this copy does not know: draw the figure at the canvas's own resolution
-            return canvas
-    out.texts = [(x * f, y * f, s, max(1, round(size * f)), colour, ha, dv * f, rot)
-                 for x, y, s, size, colour, ha, dv, rot in canvas.texts]
-    return out
-
-
-def _with_dpi(png: bytes, dpi: int) -> bytes:
-    """Insert a pHYs chunk (pixels per metre, PNG specification 11.3.5.3) after IHDR."""
-    import struct
-    import zlib
-
-    ppm = round(dpi / 0.0254)
-    body = b"pHYs" + struct.pack(">IIB", ppm, ppm, 1)
-    chunk = struct.pack(">I", 9) + body + struct.pack(">I", zlib.crc32(body) & 0xFFFFFFFF)
-    end_ihdr = 8 + 4 + 4 + 13 + 4
-    return png[:end_ihdr] + chunk + png[end_ihdr:]
-
-
-def _print_svg(canvas: Canvas) -> bytes:
-    """SVG with its physical size in mm (the drawing keeps its pixel viewBox; text stays text)."""
-    data = canvas.svg()
-    w_mm, h_mm = canvas.width / MM, canvas.height / MM
-    old = f'width="{canvas.width}px" height="{canvas.height}px"'.encode()
-    return data.replace(old, f'width="{w_mm:.2f}mm" height="{h_mm:.2f}mm"'.encode(), 1)
-
-
 def _bytes(canvas: Canvas, fmt: str) -> bytes:
-    if fmt == "png":
-        return _print_png(canvas)
-    if fmt == "svg":
-        return _print_svg(canvas)
-    return canvas.pdf()
+    """The report's one way to write a drawing: PNG at the print resolution, SVG and PDF with text as text."""
+    from zoneprofile.report.figures import canvas_bytes
+
+    return canvas_bytes(canvas, fmt)
 
 
 @dataclass
@@ -656,10 +608,7 @@ class PaperFigures:
 
 def render_paper_figures(records, population, fig_dir, *, formats=("png",), width: str = "double") -> PaperFigures:
     """Write ``ladders.<fmt>`` and ``profiles-<page>.<fmt>`` into ``fig_dir`` (nothing when no crystal is dated)."""
-    if width not in WIDTHS_MM:
-        from zoneprofile._validation import InputError
-
-        raise InputError(f"unknown figure width '{width}'; choose single or double")
+    _width_px(width)  # an unknown width is refused before anything is drawn
     fig_dir = Path(fig_dir)
     out = PaperFigures(width=width)
     lad = ladder_figure(records, population, width=width)
@@ -700,16 +649,17 @@ def paper_figures_html(paper, img, escape) -> str:
                      f"Print files ({width}): {links(paper.ladders)}."))
     n_pages = len(paper.profiles)
     no_curve = paper.n_crystals - paper.n_with_curve
-    note = (f" {no_curve} crystal(s) dated by the whole-crystal model show data and boundary marks only: the model's "
-            "predicted profile is not kept in the crystal record." if no_curve else "")
+    note = (f" {no_curve} panel(s) show data and boundary marks only: their record keeps no model curve "
+            "(e.g. a crystal model computed before curves were kept)." if no_curve else "")
     more = ""
     if n_pages > 1:
         more = " Further pages: " + "; ".join(f"page {k + 1} ({links(paths)})"
                                                for k, paths in enumerate(paper.profiles) if k) + "."
     parts.append(img(png(paper.profiles[0]), "Dated profiles, small multiples",
                      "One small panel per crystal of the ladder figure, in the same order: the dated element "
-                     "along the traverse (dots; flagged points hollow grey), the best-fit curve of each "
-                     "single-boundary fit (vermilion), the dated boundaries (dotted, coloured and labelled by "
+                     "along the traverse (dots; flagged points hollow grey), the best fit in vermilion (the "
+                     "whole-crystal model's profile over the whole traverse, or the curve of each single-boundary "
+                     "fit over its window), the dated boundaries (dotted, coloured and labelled by "
                      f"event), the ages in the panel title.{escape(note)}"
                      + (f" Page 1 of {n_pages}." if n_pages > 1 else "")
                      + f" Print files ({width}): {links(paper.profiles[0])}.{more}"))

@@ -52,16 +52,16 @@ def render_figures(record: dict, formats, *, map_image=None, width="double") -> 
     """
     from zoneprofile.report.figures import crystal_figure_bytes
 
-    rec = {k: record.get(k) for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries", "error",
-                                      "crystal_model")}
-    m = record.get("map")
+    rec = {k: record[k] for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries", "error")}
+    rec["crystal_model"] = record.get("crystal_model")  # its boundaries are marked on the profile
+    m = record["map"]
     if isinstance(m, dict):
         m = {k: v for k, v in m.items() if k != "image_png_base64"}
         if map_image is not None:
             image, stride = map_image
             m["image"] = image
             m["line"] = [v / stride for v in m["line"]]
-            pixel = (record.get("parameters") or {}).get("pixel_um")
+            pixel = record["parameters"].get("pixel_um")
             m["pixel_um"] = pixel * stride if pixel else None
             if not pixel:
                 m["boundaries"] = []

@@ -188,7 +188,7 @@ def _boundary_entry(result, boundary, element, obliquity):
     d = dict(result.to_dict())
     entry = dict(d)
     entry["position_um"] = boundary["position_um"]
-    entry["fitted_position_um"] = d.get("boundary_um")
+    entry["fitted_position_um"] = d["boundary_um"]
     entry["kind"] = boundary["kind"]
     entry["recharge"] = boundary["recharge"]
     entry["element"] = element
@@ -196,7 +196,7 @@ def _boundary_entry(result, boundary, element, obliquity):
     entry.setdefault("warnings", [])
     from zoneprofile.report._curves import merged_curve  # the figures' own merge (fit --plot uses it too)
 
-    entry["curve"] = merged_curve(d.get("curve") or {}, d.get("points") or {})
+    entry["curve"] = merged_curve(d["curve"], d["points"])
     draws = getattr(result, "time_draws_days", None)
     entry["time_draws_days"] = _finite_list(draws) if draws is not None else []
     return entry
@@ -245,11 +245,11 @@ def process_crystal(task: dict) -> dict:
     finally:
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)
-    if scratch is not None and record.get("error"):
+    if scratch is not None and record["error"]:
         record["error"] = record["error"].replace(str(scratch) + os.sep, "")
     formats = task.get("figure_formats")
     # a failed crystal is drawn too when its profile was read: the figure shows what was read and zoned
-    if formats and (not record.get("error") or record.get("profile")):
+    if formats and (not record["error"] or record["profile"]):
         t0 = time.perf_counter()
         try:
             record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"),
@@ -347,9 +347,9 @@ def _stages(task, record, transient):
             transient["map_image"] = (image, stride)
         entry = {
             "line": list(params["line"]),
-            "calibration": info.get("calibration"),
-            "boundaries": info.get("boundaries", []),
-            "resorption_evidence": info.get("resorption_evidence", []),
+            "calibration": info["calibration"],
+            "boundaries": info["boundaries"],
+            "resorption_evidence": info["resorption_evidence"],
             "image_png": None,
         }
         if image is not None:
@@ -362,7 +362,7 @@ def _stages(task, record, transient):
                 raise
             except Exception as exc:  # noqa: BLE001 - a picture is not worth failing the crystal
                 warnings.append(f"map picture not drawn: {_one_line(exc)}")
-        for note in info.get("warnings", []) or []:
+        for note in info["warnings"]:
             warnings.append(f"map: {note}")
         record["map"] = entry
         if record["profile"] is None:
@@ -428,7 +428,7 @@ def _stages(task, record, transient):
 
     # 4. zoning
     evidence = None
-    if map_info is not None and map_info.get("resorption_evidence"):
+    if map_info is not None and map_info["resorption_evidence"]:
         evidence = list(map_info["resorption_evidence"])
 
     def zoning():
@@ -446,8 +446,8 @@ def _stages(task, record, transient):
     # neighbours that bound each fit's points: the dated boundaries and every other step
     # (a step that a dated boundary stands for is not its own neighbour)
     chosen = [b["position_um"] for b in boundaries]
-    others = [float(st["position_um"]) for st in zones.get("steps") or []
-              if match_position(float(st["position_um"]), chosen, sd=st.get("position_sd_um")) is None]
+    others = [float(st["position_um"]) for st in zones["steps"]
+              if match_position(float(st["position_um"]), chosen, sd=st["position_sd_um"]) is None]
     all_positions = sorted(set(others) | set(chosen))
 
     # 5. fit each boundary with each element
@@ -464,8 +464,8 @@ def _stages(task, record, transient):
         elif trace is not None and _column(trace, "An") is not None:
             keep = np.isfinite(np.asarray(trace["An"], float))
             an, an_x = np.asarray(trace["An"], float)[keep], np.asarray(trace["distance_um"], float)[keep]
-    map_bounds = (map_info or {}).get("boundaries") or []
-    map_positions = [float(b["position_um"]) for b in map_bounds if b.get("position_um") is not None]
+    map_bounds = map_info["boundaries"] if map_info is not None else []
+    map_positions = [float(b["position_um"]) for b in map_bounds if b["position_um"] is not None]
 
     # model = "crystal": the whole-crystal model dates a crystal of two or more boundaries from
     # the zoning's positions, instead of (not after) the Monte Carlo per-boundary fits; a
@@ -475,18 +475,18 @@ def _stages(task, record, transient):
 
         if crystal_first(record, boundaries, params, task, table=table, trace=trace, map_profile=map_profile,
                          an=an, an_x=an_x, an_beam=an_beam, timing=timing, run_stage=_run_stage,
-                         map_obliquity=[b.get("obliquity_deg") for b in map_bounds]):
+                         map_obliquity=[b["obliquity_deg"] for b in map_bounds]):
             return
 
     fitted = []
     failures = []
     for rank, boundary in enumerate(boundaries):
         obliquity = params.get("obliquity_deg")
-        k = match_position(boundary["position_um"], map_positions, sd=boundary.get("position_sd_um"))
-        if k is not None and map_bounds[k].get("obliquity_deg") is not None:
+        k = match_position(boundary["position_um"], map_positions, sd=boundary["position_sd_um"])
+        if k is not None and map_bounds[k]["obliquity_deg"] is not None:
             obliquity = float(map_bounds[k]["obliquity_deg"])
         obliquity_sd = 0.0
-        if k is not None and map_bounds[k].get("obliquity_sd_deg") is not None:
+        if k is not None and map_bounds[k]["obliquity_sd_deg"] is not None:
             obliquity_sd = float(map_bounds[k]["obliquity_sd_deg"])
         window = position_window(boundary, params.get("boundary_window_um"))
         # the window is drawn by the fit: outside each neighbour's diffused zone (diffusion._window)

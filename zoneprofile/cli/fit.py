@@ -127,26 +127,6 @@ def _read_path_table(path):
         raise InputError(exc.message, path=path) from None
 
 
-def _import_lmfit_lean():
-    """Import lmfit in this command's process without its optional matplotlib import.
-
-    lmfit imports matplotlib at start-up only to offer plotting, which this command
-    does not use (its figure is drawn by zoneprofile, and only with --plot). Blocking
-    it for the duration of the import saves about 0.3 s of start-up; the block is
-    lifted at once, so a later ``import matplotlib`` works.
-    """
-    import sys
-
-    if "lmfit" in sys.modules or "matplotlib" in sys.modules:
-        return
-    sys.modules["matplotlib"] = None
-    try:
-        import lmfit  # noqa: F401
-    finally:
-        if sys.modules.get("matplotlib", 0) is None:
-            del sys.modules["matplotlib"]
-
-
 def run(args):
     if getattr(args, "crystal", False):
         from zoneprofile.cli._fit_crystal import run_crystal
@@ -221,8 +201,6 @@ def _run_single(args, _collect=None):
     from zoneprofile.diffusion import LinearCooling, fit_boundary
     from zoneprofile.io.profile import read_profile
 
-    if plot is None:
-        _import_lmfit_lean()
     from zoneprofile.cli._fit_inputs import blank_note, censored_note, value_source
 
     header = _header(profile_path)
@@ -276,7 +254,7 @@ def _run_single(args, _collect=None):
     if factor is not None:
         values = values * factor
     distance = frame["distance_um"].to_numpy(float)
-    value_sd = read_sd(frame, col, profile_path)
+    value_sd = read_sd(frame, col, profile_path, input_notes)
     if value_sd is not None:
         if col == "X_Fe":
             value_sd = 100.0 * value_sd
@@ -344,8 +322,12 @@ def _run_single(args, _collect=None):
             raise
         fits.append(result)
 
+    from zoneprofile.cli._fit_notes import print_shared, take_shared
+
+    shared = [] if _collect is not None else take_shared(fits)  # several elements: taken over all of them
     document = {
         "fits": [r.to_dict() for r in fits],
+        "warnings": shared,
         "input": {
             "profile": str(profile_path),
             "sha256": hashlib.sha256(profile_path.read_bytes()).hexdigest(),
@@ -370,6 +352,7 @@ def _run_single(args, _collect=None):
     write_json(out, document)
     if figure is not None:
         write_bytes(plot, figure)
+    print_shared(shared)
     for r in fits:
         print(r.report())
     return 0

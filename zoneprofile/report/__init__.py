@@ -66,6 +66,9 @@ def _clean_record(record: dict) -> dict:
         m = {k: v for k, v in m.items() if k != "image"}
         m["image"] = "omitted (array)"
         rec["map"] = m
+    cm = rec.get("crystal_model")
+    if isinstance(cm, dict) and "curves" in cm:  # the model's profiles stay in the cache, as fit curves do
+        rec["crystal_model"] = {k: v for k, v in cm.items() if k != "curves"}
     rec.setdefault("error", None)
     rec.setdefault("recharge_intervals_days", [])
     return rec
@@ -135,7 +138,9 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
     map_dir : path-like, optional
         Folder that ``map.image_png`` paths are relative to; default ``out_dir``.
     figure_width : {"single", "double"}
-        Print width of the figures: one journal column (90 mm) or two (180 mm).
+        Print width of every figure (crystal, chronology, events, and the
+        population's paper figures ``ladders``, ``profiles-N``): one journal
+        column (90 mm) or two (180 mm).
 
     Returns
     -------
@@ -179,6 +184,10 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
     for el, d in pop.items():
         figures += d["chronology"] + d["events"]
         pop_pngs[el] = {kind: next(p for p in paths if p.suffix == ".png") for kind, paths in d.items()}
+    from zoneprofile.report.population_figures import render_paper_figures
+
+    paper = render_paper_figures(records, population, fig_dir, formats=fmts, width=figure_width)
+    figures += paper.files
 
     tables = write_tables(records, population, out / "tables")
     doc = results_json(records, population, provenance)
@@ -187,7 +196,8 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
     tables.append(write_supplement(records, population, doc["provenance"], out / "supplement.xlsx"))
     results = write_json(out / "results.json", doc)
     page = build_html(records, population, doc["provenance"], laws=doc["provenance"]["laws"],
-                      crystal_pngs=crystal_pngs, population_pngs=pop_pngs, title=title)
+                      crystal_pngs=crystal_pngs, population_pngs=pop_pngs, title=title,
+                      paper_figures=paper)
     report = write_text(out / "report.html", page)
     files = [p.resolve().relative_to(out.resolve()).as_posix() for p in [report, results, *tables, *figures]]
     return {"files": files, "report": report, "results": results, "figures": figures, "tables": tables}

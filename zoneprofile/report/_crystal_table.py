@@ -33,10 +33,10 @@ def crystal_model_table(records) -> pd.DataFrame:
     """Rows of ``crystal_model.csv`` for the records that carry a whole-crystal model."""
     rows = []
     for r in records or []:
-        cm = r.get("crystal_model") if not r.get("error") else None
+        cm = r.get("crystal_model") if not r["error"] else None
         if not isinstance(cm, dict):
             continue
-        common = {"sample": r.get("sample"), "crystal": r.get("crystal"), "temperature_c": cm.get("temperature_c"),
+        common = {"sample": r["sample"], "crystal": r["crystal"], "temperature_c": cm.get("temperature_c"),
                   "obliquity": _obliquity(cm.get("obliquity")), "warnings": "; ".join(cm.get("warnings") or [])}
         for b in cm.get("boundaries") or []:
             if not isinstance(b, dict):

@@ -39,7 +39,8 @@ def test_files_written(built):
     n_ok = sum(1 for r in recs if not r["error"])
     for ext in ("png", "svg"):
         # one figure per analysed crystal + chronology + events for the one element
-        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2
+        # + the population's ladders and one page of dated profiles
+        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2 + 2
     assert all((out / f).exists() for f in result["files"])
     assert not list((out / "figures").glob("*.pdf"))  # PDF only on request
 
@@ -201,10 +202,11 @@ def test_sparse_records_render(tmp_path):
     pop = population_summary(recs, n_bootstrap=10)
     res = write_outputs(recs, pop, None, tmp_path, formats=("pdf",))
     pdfs = sorted((tmp_path / "figures").glob("*.pdf"))
-    assert len(pdfs) == 3 and all(p.read_bytes()[:5] == b"%PDF-" for p in pdfs)  # PDF header (ISO 32000)
+    # crystal, chronology, events + the population's ladders and dated profiles
+    assert len(pdfs) == 5 and all(p.read_bytes()[:5] == b"%PDF-" for p in pdfs)  # PDF header (ISO 32000)
     page = res["report"].read_text()
     assert "citation not recorded" in page
-    assert page.count("<img") == 3
+    assert page.count("<img") == 5
 
 
 def test_only_upper_bounds_and_nothing_dated(tmp_path):
@@ -217,7 +219,8 @@ def test_only_upper_bounds_and_nothing_dated(tmp_path):
     (tmp_path / "a").mkdir()
     res = write_outputs(recs, pop, {}, tmp_path / "a", formats=("png",))
     page = res["report"].read_text()
-    assert page.count("<img") == 3 and "upper bound" in page
+    # crystal, events + the ladders (two bounds drawn as arrows) and the dated profiles
+    assert page.count("<img") == 5 and "upper bound" in page
     # a crystal without any boundary and a campaign where nothing is dated
     recs = [{"sample": "S", "crystal": "c1", "error": None, "boundaries": []}]
     (tmp_path / "b").mkdir()

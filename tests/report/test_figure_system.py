@@ -180,3 +180,29 @@ def test_figure_width_is_refused_when_unknown():
 
     with pytest.raises(InputError, match="single, double"):
         zoning_canvas(_profile_record(np.linspace(60, 70, 31), ["ok"] * 31), width="wide")
+
+
+def test_a_crystal_dated_by_the_whole_crystal_model_shows_its_joint_fit():
+    import xml.etree.ElementTree as ET
+
+    from zoneprofile.report.figures import crystal_figure_bytes
+
+    x = np.linspace(0.0, 100.0, 51)
+    grown = np.where(x < 40, 600.0, 400.0)
+    model = 500 + 100 * np.tanh((40 - x) / 5)
+    rec = {"sample": "S", "crystal": "c1", "mineral": "plagioclase", "error": None,
+           "profile": {"distance_um": x.tolist(), "An": np.where(x < 40, 70.0, 55.0).tolist(), "qc": ["ok"] * 51},
+           "trace_profile": {"distance_um": x.tolist(), "Mg_ppm": (model + 3).tolist()},
+           "zones": {"column": "An"}, "boundaries": [],
+           "crystal_model": {"elements": ["Mg"], "boundaries": [
+               {"id": "B1", "position_um": 40.0, "age_days": {"median": 20.0, "statement": "date"}}],
+               "curves": {"Mg": {"distance_um": x.tolist(), "model": model.tolist(), "grown": grown.tolist()}}}}
+    root = ET.fromstring(crystal_figure_bytes(rec, ("svg",))["svg"])
+    block = [g for g in root.iter(f"{NS}g") if g.get("class") == "model"]
+    assert len(block) == 1
+    texts = [t.text for t in block[0].iter(f"{NS}text")]
+    for label in ("Mg: whole-crystal model", "B1 20 d", "B1", "Mg (ppm)", "initial profile (model)", "best fit"):
+        assert label in texts, label
+    # the data (51 points) and the dated boundary's triangle on the profile
+    dots = [p for p in block[0].iter(f"{NS}path") if p.get("fill") == "#000000" and p.get("d", "").count("M") == 51]
+    assert len(dots) == 1

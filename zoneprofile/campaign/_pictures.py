@@ -53,7 +53,8 @@ def render_figures(record: dict, formats, *, map_image=None, width="double") -> 
     from zoneprofile.report.figures import crystal_figure_bytes
 
     rec = {k: record[k] for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries", "error")}
-    rec["crystal_model"] = record.get("crystal_model")  # its boundaries are marked on the profile
+    rec["crystal_model"] = record.get("crystal_model")  # its boundaries and curves are drawn
+    rec["trace_profile"] = record.get("trace_profile")  # the laser traverse the model was fitted to
     m = record["map"]
     if isinstance(m, dict):
         m = {k: v for k, v in m.items() if k != "image_png_base64"}

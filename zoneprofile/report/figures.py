@@ -349,6 +349,117 @@ def _fit_ylabel(b) -> str:
         except Exception:  # noqa: BLE001 - an unknown mineral: the element in ppm, as below
             column = None
     return _quantity_label(column) if column else f"{element} (ppm)"
+def _model_series(record, element):
+    """``(x, values, sd or None, good, label)`` of an element along the crystal's traverse, or None."""
+    column = None
+    if record.get("mineral"):
+        from zoneprofile.minerals.registry import value_column
+
+        try:
+            column = value_column(element, record["mineral"])
+        except Exception:  # noqa: BLE001 - an unknown mineral: the element in ppm, as below
+            column = None
+    for col in [c for c in (column, f"{element}_ppm") if c]:
+        for key in ("profile", "trace_profile"):
+            prof = record.get(key) or {}
+            x, v = prof.get("distance_um"), prof.get(col)
+            if x is None or v is None or len(x) != len(v) or not len(x):
+                continue
+            x, v = np.asarray(x, dtype=float), np.asarray(v, dtype=float)
+            qc = prof.get("qc")
+            good = (np.array([q == "ok" for q in qc], dtype=bool) if qc is not None and len(qc) == x.size
+                    else np.ones(x.size, dtype=bool))
+            sd = prof.get(f"{col}_sd")
+            sd = np.asarray(sd, dtype=float) if sd is not None and len(sd) == x.size else None
+            return x, v, sd, good, _quantity_label(col)
+    return None
+
+
+def _model_panel(canvas, record, element, cell):
+    """One element's whole-crystal model: data, the profile as grown (initial), best joint fit, boundaries."""
+    left, top, right = cell
+    cm = record.get("crystal_model") or {}
+    curve = (cm.get("curves") or {}).get(element) or {}
+    cx = np.asarray(curve.get("distance_um") or [], dtype=float)
+
+    def arr(key):
+        v = curve.get(key)
+        return np.asarray(v, dtype=float) if v is not None and len(v) == cx.size and cx.size else None
+
+    model, grown = arr("model"), arr("grown")
+    series = _model_series(record, element)
+    bounds = sorted((b for b in cm.get("boundaries") or [] if isinstance(b, dict) and b.get("position_um") is not None),
+                    key=lambda b: float(b["position_um"]))
+    x = v = sd = good = None
+    label = f"{element} (ppm)"
+    if series is not None:
+        x, v, sd, good, label = series
+    ylim = autoscale(model, grown, *(() if series is None else (_value_limits(v, sd, good),)))
+    xlim = autoscale(cx, [float(b["position_um"]) for b in bounds])
+    box_top = top + _FIT_TOP
+    ax = Axes(canvas, (left + Axes.left_margin(ylim, _AXES_H), box_top, right - 18, box_top + _AXES_H), xlim, ylim)
+    x0, y0, x1, y1 = ax.box
+    ax.grid()
+    entries = []
+    if grown is not None:
+        c, ls, _ = SERIES["initial"]
+        canvas.line(ax.x(cx), ax.y(grown), c, 1.0, dash=ls)
+        entries.append((LABELS["initial"], {"line": (c, 1.0, ls)}))
+    if series is not None:
+        ok = good & np.isfinite(x) & np.isfinite(v)
+        c, _, m = SERIES["data"]
+        bars = _error_bars(canvas, ax, x[ok], v[ok], sd[ok] if sd is not None else None, c)
+        canvas.markers(ax.x(x[ok]), ax.y(v[ok]), m, 2.8, c)
+        handle = {"marker": (m, 2.8, c, None)}
+        if bars:
+            handle["bar"] = (c, 0.6)
+        entries.append((LABELS["data"] if bars else LABELS["data_plain"], handle))
+        bad = ~good & np.isfinite(x) & np.isfinite(v) & (v >= ylim[0]) & (v <= ylim[1])
+        if bad.any():
+            fc = SERIES["flagged"][0]
+            canvas.markers(ax.x(x[bad]), ax.y(v[bad]), "o", 4, "#FFFFFF", edge=fc)
+            entries.append((LABELS["flagged"], {"marker": ("o", 4, "#FFFFFF", fc)}))
+    if model is not None:
+        c, ls, _ = SERIES["model"]
+        canvas.line(ax.x(cx), ax.y(model), c, 1.6, dash=ls)
+        entries.append((LABELS["model"], {"line": (c, 1.6, ls)}))
+    for b in bounds:
+        px = float(ax.x(float(b["position_um"])))
+        canvas.line([px, px], [y0, y1], COLOURS["grey"], 0.8, dash=":")
+        canvas.text(px + 2, y0 + 2, str(b.get("id") or ""), 7, va="top", colour="#333333")
+    if bounds:
+        entries.append((LABELS["boundary"], {"line": (COLOURS["grey"], 0.8, ":")}))
+    from zoneprofile.report.timetext import time_statement
+
+    ages = " · ".join(f"{b.get('id')} {time_statement(b.get('age_days') or {})}" for b in bounds)
+    ax.frame(xlabel=LABELS["distance"], ylabel=label, title=f"{element}: whole-crystal model\n{ages}")
+    return entries
+
+
+def model_block(record, width="double") -> Canvas:
+    """The whole-crystal model's panels (one per element with a stored curve) and one legend, as a block."""
+    cm = record.get("crystal_model") or {}
+    elements = [e for e in (cm.get("curves") or {}) if (cm["curves"].get(e) or {}).get("model")]
+    width_px = figure_width_px(width)
+    ncols = _fit_columns(len(elements), width)
+    canvas = Canvas(width_px, 1)
+    inner = width_px - 2 * _PAD
+    col_w = inner / ncols
+    handles = {}
+    bottom = 0.0
+    for k, element in enumerate(elements):
+        r, c = divmod(k, ncols)
+        row_top = r * (_FIT_TOP + _AXES_H + _BELOW + _FIT_GAP)
+        for label, h in _model_panel(canvas, record, element, (_PAD + c * col_w, row_top, _PAD + (c + 1) * col_w)):
+            handles.setdefault(label, h)
+        bottom = row_top + _FIT_TOP + _AXES_H + _BELOW
+    if handles:
+        bottom = legend(canvas, list(handles.items()), centre_x=width_px / 2, top=bottom + 8, max_width=inner,
+                        size_pt=7.5)
+    canvas.height = int(math.ceil(bottom + 4))
+    return canvas
+
+
 def _load_map(m, map_dir):
     if m.get("image") is not None:
         return np.asarray(m["image"], dtype=float)
@@ -518,6 +629,11 @@ def crystal_canvas(record, *, map_dir=None, width="double") -> Canvas:
         block = fits_block(fits, width)
         canvas.place(block, 0, y + 14, name="fits")
         y += 14 + block.height
+    elif not record.get("error") and ((record.get("crystal_model") or {}).get("curves")):
+        block = model_block(record, width)  # dated together by the whole-crystal model
+        if block.height > 5:
+            canvas.place(block, 0, y + 14, name="model")
+            y += 14 + block.height
     canvas.height = int(math.ceil(y + _PAD))
     return canvas
 

@@ -257,10 +257,11 @@ def _crystal_section(k, record, fig_png) -> str:
                           "never setting the axis range; the map where there is one. Below: each dated "
                           "boundary with data (bars: ±1 sd where known), best fit, the 95% model band and the "
                           "model's initial profile (dashed). For Mg, Sr and Ba in plagioclase that initial "
-                          "profile is K(An)·C<sub>melt</sub> at the measured An (Bindeman et al. 1998), so it "
-                          "follows the scatter of the An analyses and shows a narrow spike or dip where the "
-                          "beam-blurred An step and the fitted boundary do not coincide: it is the condition "
-                          "the model started from, not a fitted shape."))
+                          "profile is K(An)·C<sub>melt</sub> (Bindeman et al. 1998) at the measured An, "
+                          "smoothed and sharpened at its step, so it follows the An zoning and shows a narrow "
+                          "spike or dip where the An step (placed from the An analyses) and the fitted step of "
+                          "the element do not coincide exactly: it is the condition the model started from, not "
+                          "a fitted shape."))
     bs = record.get("boundaries") or []
     if bs:
         rows = []

@@ -20,7 +20,6 @@ Example:
       --line 120,88,260,190 --width-px 7 -o plag7_map.csv --plot plag7_map.png
 """
 
-
 from zoneprofile.cli._figure_width import add_figure_width
 
 

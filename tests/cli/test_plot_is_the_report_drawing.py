@@ -136,3 +136,54 @@ def test_zones_plot_single_column_png_keeps_flagged_points(tmp_path):
         assert abs(img.size[0] - 300 * 3.54) <= 1  # 90 mm at 300 dpi
     texts = [t.text for t in ET.fromstring(svg.read_bytes()).iter(f"{NS}text")]
     assert "flagged, off scale" in texts and "An (±1 sd)" in texts and "oscillatory band" in texts
+
+
+_CAMPAIGN = """title = "figure width"
+figure_width = "{width}"
+
+[defaults]
+mineral = "plagioclase"
+elements = ["Mg"]
+temperature_c = 1000
+
+[samples.S]
+
+[[crystals]]
+sample = "S"
+id = "c1"
+traverse = "missing.csv"
+"""
+
+
+def test_campaign_figure_width_key_is_read_and_checked(tmp_path):
+    from zoneprofile._validation import InputError
+    from zoneprofile.campaign import load_campaign
+
+    (tmp_path / "missing.csv").write_text("distance_um,An\n0,50\n")
+    path = tmp_path / "c.toml"
+    path.write_text(_CAMPAIGN.format(width="Single"))
+    assert load_campaign(path).figure_width == "single"
+    path.write_text(_CAMPAIGN.replace('figure_width = "{width}"\n', ""))
+    assert load_campaign(path).figure_width == "double"  # the default (zoneprofile/_limits.py CHOICES)
+    path.write_text(_CAMPAIGN.format(width="wide"))
+    with pytest.raises(InputError, match=r"line 2.*figure_width.*single, double"):
+        load_campaign(path)
+    out = tmp_path / "out"
+    code, _, err = run_cli("run", path, "--out", out, "--quiet")
+    assert code == 2 and len(err.strip().splitlines()) == 1 and "figure_width" in err
+    assert not out.exists()
+
+
+def test_report_figures_at_the_campaign_width(tmp_path):
+    from PIL import Image
+
+    from zoneprofile.report import write_outputs
+    from zoneprofile.report._sample import sample_provenance, sample_records
+
+    recs = sample_records(seed=7, samples=("S",), crystals_per_sample=2, with_failure=False, n_draws=50)
+    write_outputs(recs, {}, sample_provenance(recs), tmp_path, formats=("png",), figure_width="single")
+    crystal = sorted((tmp_path / "figures").glob("crystal-*.png"))
+    assert crystal
+    for p in crystal:
+        with Image.open(p) as img:
+            assert abs(img.size[0] - 300 * 3.54) <= 1  # one column, 90 mm at 300 dpi

@@ -512,7 +512,7 @@ def test_chronology_figure_shows_every_part_with_units(pop_figures):
     ecdf, kde = block["campaign"]["ecdf"], block["campaign"]["kde"]
     expected = ["Recharge chronology: Mg", "Empirical CDF of boundary times", "Kernel density of log10 time",
                 "fraction of dated boundaries", "density (per log10 day)", "spread from time draws (95%)",
-                "DKW band (95%)", f"all samples (n = {ecdf['n']})", "upper bound (not in ECDF)",
+                "DKW band limits (95%)", f"all samples (n = {ecdf['n']})", "upper bound (not in ECDF)",
                 "bootstrap over crystals (95%)", f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)",
                 "boundary medians"]
     expected += [f"{name} (n = {s['ecdf']['n']})" for name, s in block["samples"].items()]
@@ -523,7 +523,9 @@ def test_chronology_figure_shows_every_part_with_units(pop_figures):
     assert "10" in texts and "100" in texts  # decade ticks
     ns = "{http://www.w3.org/2000/svg}"
     fills = {p.get("fill") for p in root.iter(f"{ns}path")} | {r.get("fill") for r in root.iter(f"{ns}rect")}
-    assert {"#56B4E9", "#E69F00", "#009E73"} <= fills  # DKW band, draw envelope, KDE band (Okabe & Ito 2008)
+    assert {"#E69F00", "#009E73"} <= fills  # draw envelope, KDE band (Okabe & Ito 2008)
+    strokes = {p.get("stroke") for p in root.iter(f"{ns}path")}
+    assert "#56B4E9" in strokes  # the DKW band's limits, drawn as lines
     assert {"#D4E9F7", "#F9DCCB"} <= fills  # event spans
 
 

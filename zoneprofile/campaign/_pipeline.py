@@ -184,39 +184,6 @@ def _budget_options(params):
     )
 
 
-def _merged_curve(curve: dict, points: dict) -> dict:
-    """Model curves and measured points on one axis (the sorted union of both grids).
-
-    Model, initial profile and band are interpolated at the data positions
-    (their grid is dense); the data are null between data positions. Plots
-    then show the points where they were measured and the curves unbroken.
-    """
-    gx = np.asarray(curve["distance_um"] if curve["distance_um"] is not None else [], dtype=float)
-    px = np.asarray(points["distance_um"] if points["distance_um"] is not None else [], dtype=float)
-    pv = np.asarray(points["value"] if points["value"] is not None else [], dtype=float)
-    if gx.size == 0:
-        return {"distance_um": _finite_list(px), "data": _finite_list(pv)}
-    x = np.union1d(gx, px)
-    out = {"distance_um": _finite_list(x)}
-    inside = (x >= gx.min()) & (x <= gx.max())
-    for name in ("model", "initial", "band_low", "band_high"):
-        values = curve[name]
-        if values is None or len(values) != gx.size:
-            continue
-        y = np.interp(x, gx, np.asarray(values, dtype=float))
-        out[name] = _finite_list(np.where(inside, y, np.nan))
-    data = np.full(x.size, np.nan)
-    if px.size and pv.size == px.size:
-        data[np.searchsorted(x, px)] = pv
-    out["data"] = _finite_list(data)
-    psd = points.get("sd")  # 1 sd per point when known: error bars in the figures
-    if psd is not None and len(psd) == px.size and px.size:
-        sd = np.full(x.size, np.nan)
-        sd[np.searchsorted(x, px)] = np.asarray(psd, dtype=float)
-        out["data_sd"] = _finite_list(sd)
-    return out
-
-
 def _boundary_entry(result, boundary, element, obliquity):
     d = dict(result.to_dict())
     entry = dict(d)
@@ -227,7 +194,9 @@ def _boundary_entry(result, boundary, element, obliquity):
     entry["element"] = element
     entry["obliquity_deg"] = obliquity
     entry.setdefault("warnings", [])
-    entry["curve"] = _merged_curve(d["curve"], d["points"])
+    from zoneprofile.report._curves import merged_curve  # the figures' own merge (fit --plot uses it too)
+
+    entry["curve"] = merged_curve(d["curve"], d["points"])
     draws = getattr(result, "time_draws_days", None)
     entry["time_draws_days"] = _finite_list(draws) if draws is not None else []
     return entry
@@ -283,7 +252,8 @@ def process_crystal(task: dict) -> dict:
     if formats and (not record["error"] or record["profile"]):
         t0 = time.perf_counter()
         try:
-            record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"))
+            record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"),
+                                                width=task.get("figure_width") or "double")
             record["timing_s"]["figure"] = time.perf_counter() - t0
         except (KeyboardInterrupt, SystemExit, MemoryError):
             raise

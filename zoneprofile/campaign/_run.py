@@ -40,6 +40,7 @@ class RunSummary(RunVocabulary):
     figures: list = field(default_factory=list)  # per record: {format: bytes} drawn with the crystal, or None
     notes: list = field(default_factory=list)  # things the user should know about the run itself
     formats: tuple = ("png", "svg")
+    figure_width: str = "double"  # print width of the figures (campaign key figure_width)
 
     def to_frame(self):
         """One row per crystal (the report's crystals table)."""
@@ -99,6 +100,7 @@ def build_tasks(campaign: Campaign, *, ship_bytes: bool = False, formats=None) -
             "parameters": to_jsonable(spec.parameters),
             "payload": payload or None,
             "figure_formats": list(formats) if formats else None,
+            "figure_width": getattr(campaign, "figure_width", "double"),
         }
         task["key"] = task_key(task, __version__)
         tasks.append(task)
@@ -277,7 +279,8 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
     tasks = build_tasks(campaign, ship_bytes=ship, formats=fmts)
     store = ResultCache(campaign.cache_dir) if (cache and campaign.cache_dir is not None) else None
     records: list = [None] * len(tasks)
-    summary = RunSummary(out_dir=Path("."), records=records, formats=fmts)
+    width = getattr(campaign, "figure_width", "double")
+    summary = RunSummary(out_dir=Path("."), records=records, formats=fmts, figure_width=width)
     summary.figures = [None] * len(tasks)
     pending = []
     shown = time.monotonic()
@@ -286,7 +289,8 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
             shown = time.monotonic()
             bar.phase(f"looking up crystals in the cache: {i}/{n}, {len(summary.from_cache)} found")
         hit = store.get(task["key"]) if store is not None else None
-        figures = store.get_figures(task["key"], fmts) if hit is not None else None
+        # cached figures are double-column ones: another width is drawn again (the record is reused)
+        figures = store.get_figures(task["key"], fmts) if hit is not None and width == "double" else None
         # a mapped crystal cached without the figure formats asked for is drawn again with its map
         # (the map image is not kept in the record); other figures are drawn at the end if missing
         if hit is not None and (figures is not None or not hit["map"]):
@@ -315,7 +319,7 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
             summary.failed.append((label, record["error"]))
         elif store is not None and not cache_broken:
             try:
-                store.put(task["key"], record, figures)
+                store.put(task["key"], record, figures if width == "double" else None)
             except OSError as exc:
                 cache_broken.append(True)
                 summary.notes.append(f"cache folder {store.folder} is not writable ({exc.strerror or exc}); "
@@ -368,4 +372,4 @@ def write_campaign_outputs(summary: RunSummary, folder, *, formats=None) -> None
         given[i] = fig_dir / f"{name}.png"
     title = summary.provenance.get("parameters", {}).get("title") or None
     write_outputs(records, summary.population, summary.provenance, folder, formats=tuple(fmts), title=title,
-                  crystal_figures=given)
+                  crystal_figures=given, figure_width=summary.figure_width)

@@ -20,7 +20,7 @@ def map_record(profile, info, *, column="An") -> dict:
 
     ``info`` must come from ``extract_profile(..., return_objects=True)``.
     """
-    from zoneprofile.campaign._pictures import calibrated_image
+    from zoneprofile.maps._picture import calibrated_image
 
     image, stride = calibrated_image(info)
     pixel = (info.get("image") or {}).get("pixel_um")

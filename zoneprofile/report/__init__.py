@@ -137,8 +137,10 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
         (SVG) of CPU on the development machine.
     map_dir : path-like, optional
         Folder that ``map.image_png`` paths are relative to; default ``out_dir``.
-    figure_width : {"double", "single"}
-        Print width of the population's paper figures (``ladders``, ``profiles-N``): 180 or 90 mm.
+    figure_width : {"single", "double"}
+        Print width of every figure (crystal, chronology, events, and the
+        population's paper figures ``ladders``, ``profiles-N``): one journal
+        column (90 mm) or two (180 mm).
 
     Returns
     -------
@@ -174,10 +176,10 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
                     figures.append(sibling)
             continue
         paths = render_crystal_figure(rec, fig_dir / (crystal_figure_name(rec, k) + ".png"),
-                                      formats=crystal_fmts, map_dir=map_dir)
+                                      formats=crystal_fmts, map_dir=map_dir, width=figure_width)
         figures += paths
         crystal_pngs[k] = next(p for p in paths if p.suffix == ".png")
-    pop = render_population_figures(population, fig_dir, formats=fmts)
+    pop = render_population_figures(population, fig_dir, formats=fmts, width=figure_width)
     pop_pngs = {}
     for el, d in pop.items():
         figures += d["chronology"] + d["events"]

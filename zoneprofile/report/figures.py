@@ -194,6 +194,9 @@ def _profile_panel(canvas, record, cell):
     steps = [s for s in zones.get("steps") or [] if s.get("position_um") is not None]
     surfaces = [r for r in zones.get("resorption_surfaces") or [] if r.get("position_um") is not None]
     dated = [b for b in record.get("boundaries") or [] if b.get("position_um") is not None]
+    if not dated and not record.get("error"):  # dated together by the whole-crystal model (no fit panels)
+        dated = [b for b in (record.get("crystal_model") or {}).get("boundaries") or []
+                 if isinstance(b, dict) and b.get("position_um") is not None]
     has_y = x.size > 0 and y.size == x.size
     positions = [float(s["position_um"]) for s in steps] + [float(r["position_um"]) for r in surfaces]
     positions += [float(b["position_um"]) for b in dated]
@@ -525,12 +528,12 @@ def boundary_entry(fit, *, value_sd=None, distance_um=None) -> dict:
 
     ``fit`` is a :class:`~zoneprofile.diffusion.FitResult` or its ``to_dict()``
     (a FIT.json ``fits[]`` entry). The curves are merged with the fitted points
-    by the campaign's own code, so ``fit --plot`` draws exactly what the
+    by the code a campaign uses (:mod:`zoneprofile.report._curves`), so ``fit --plot`` draws exactly what the
     report draws for that boundary. ``value_sd`` (1 sd per point, at
     ``distance_um``) adds error bars. Every use of the fit result's fields is
     here (one place to follow a renamed field).
     """
-    from zoneprofile.campaign._pipeline import _merged_curve
+    from zoneprofile.report._curves import merged_curve
 
     d = fit.to_dict() if hasattr(fit, "to_dict") else dict(fit)
     points = dict(d.get("points") or {})
@@ -542,7 +545,7 @@ def boundary_entry(fit, *, value_sd=None, distance_um=None) -> dict:
         points["sd"] = np.where(np.isclose(xs[k], px, rtol=0, atol=1e-9), sds[k], np.nan).tolist()
     return {"element": d.get("element"), "mineral": d.get("mineral"), "position_um": d.get("boundary_um"),
             "time_days": d.get("time_days"), "resolved": d.get("resolved", True),
-            "curve": _merged_curve(d.get("curve") or {}, points)}
+            "curve": merged_curve(d.get("curve") or {}, points)}
 
 
 def fit_canvas(boundaries, *, width="double") -> Canvas:
@@ -759,8 +762,11 @@ def _ecdf_panel(canvas, el_key, block, population, cell):
         _, hi = step_xy(xs, ends(ecdf["upper"], min(ecdf["halfwidth"], 1.0), 1.0))
         px = ax.x(sx)
         dkw = SERIES["dkw"][0]
-        canvas.polygon(np.concatenate([px, px[::-1]]), np.concatenate([ax.y(hi), ax.y(lo)[::-1]]), dkw, alpha=0.35)
-        entries.append((f"DKW band ({100 * ecdf['confidence']:.0f}%)", {"patch": (dkw, 0.35)}))
+        # the DKW band as its two limits (thin lines), not a second fill over the draw envelope: the
+        # cumulative panel stays readable with several sample curves on it
+        canvas.line(px, ax.y(lo), dkw, 0.9)
+        canvas.line(px, ax.y(hi), dkw, 0.9)
+        entries.append((f"DKW band limits ({100 * ecdf['confidence']:.0f}%)", {"line": (dkw, 0.9, "-")}))
         c = SERIES["ecdf"][0]
         sx, sy = step_xy(xs, ends(ecdf["cdf"], 0.0, 1.0))
         canvas.line(ax.x(sx), ax.y(sy), c, 1.8)

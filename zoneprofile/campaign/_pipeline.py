@@ -25,6 +25,7 @@ from pathlib import Path
 import numpy as np
 
 from zoneprofile._output import to_jsonable
+from zoneprofile._records import BoundaryRecord, CrystalRecord  # the layouts made here, declared once
 from zoneprofile._validation import InputError
 from zoneprofile.campaign._boundaries import (
     match_position,
@@ -212,7 +213,7 @@ def _merged_curve(curve: dict, points: dict) -> dict:
     return out
 
 
-def _boundary_entry(result, boundary, element, obliquity):
+def _boundary_entry(result, boundary, element, obliquity) -> BoundaryRecord:
     d = dict(result.to_dict())
     entry = dict(d)
     entry["position_um"] = boundary["position_um"]
@@ -243,7 +244,7 @@ def _materialise(task):
     return {**task, "inputs": inputs, "payload": None}, folder
 
 
-def process_crystal(task: dict) -> dict:
+def process_crystal(task: dict) -> CrystalRecord:
     """Run one crystal through every stage and return its record.
 
     Parameters
@@ -288,7 +289,7 @@ def process_crystal(task: dict) -> dict:
     return to_jsonable(record)
 
 
-def _base_record(task):
+def _base_record(task) -> CrystalRecord:
     return {
         "sample": task["sample"],
         "crystal": task["crystal"],

@@ -1,4 +1,4 @@
-"""Driver for the fault tests of ``tests/test_run_faults.py`` (run as a child process).
+"""Driver for the fault tests of ``tests/cli/test_run_faults.py`` (run as a child process).
 
 ``python _fault_driver.py FOLDER N OUT SECONDS WORKERS [--force]`` writes a campaign of N
 crystals (one tiny traverse each) into FOLDER and runs it into OUT with a per-crystal

@@ -2,8 +2,8 @@
 
 ``record()`` writes the optimum of every case (all fitted parameters, χ² and the
 noise-refit spread of log10 D·t) to ``tests/data/replay_fits.json``;
-``tests/test_fit_replay.py`` refits and compares. These numbers come from the
-optimisers alone (coarse search, variable projection, the An-step tie, lmfit),
+``tests/diffusion/test_fit_replay.py`` refits and compares. These numbers come from the
+optimisers alone (coarse search, variable projection, the An-step tie, the last least-squares step),
 not from the Monte Carlo draws, so changes to the uncertainty budget do not
 disturb them.
 """

@@ -258,6 +258,14 @@ class CrystalModelGap(TypedDict):
     days: TimeSummary
 
 
+class CrystalModelCurve(TypedDict):
+    """One element's best joint fit, for the figures (``crystal_model["curves"][element]``)."""
+
+    distance_um: Values  # µm from the rim, first to last analysis
+    model: Values  # the fitted profile as the spot sees it (the element's unit)
+    grown: Values  # every zone as it grew, before any diffusion (the model's initial condition)
+
+
 class CrystalModelPart(TypedDict):
     """``record["crystal_model"]`` (docs/whole-crystal-model.md)."""
 
@@ -277,6 +285,7 @@ class CrystalModelPart(TypedDict):
     chi2: Number
     n_points: int
     best_ages_days_at_nominal_temperature: Values
+    curves: NotRequired[dict[str, CrystalModelCurve]]  # records cached before the curves were stored lack it
     laws: dict[str, str]
     uncertainty: str
     timing_s: Number  # seconds (None inside the worker until it is measured)

@@ -3,7 +3,7 @@
 One plagioclase crystal with three recharge boundaries (110, 60, 15 µm; events
 400, 80 and 7 days before the end at 850 ± 10 °C), Mg and Sr by a 4 µm spot at
 2 µm spacing with 2 % noise, An by the same spots, made by the reference solver
-of tests/test_crystal_model.py (not the model under test). Measured side by
+of tests/diffusion/test_crystal_model.py (not the model under test). Measured side by
 side in one run, interleaved A B A B ..., one BLAS thread (as campaign workers
 run):
 
@@ -33,7 +33,7 @@ HERE = Path(__file__).resolve().parent
 
 
 def _case():
-    sys.path.insert(0, str(HERE.parent))
+    sys.path.insert(0, str(HERE.parent / "diffusion"))
     from test_crystal_model import _three_event_case
 
     return _three_event_case(11)

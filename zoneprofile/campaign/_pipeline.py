@@ -210,6 +210,11 @@ def _merged_curve(curve: dict, points: dict) -> dict:
     if px.size and pv.size == px.size:
         data[np.searchsorted(x, px)] = pv
     out["data"] = _finite_list(data)
+    psd = points.get("sd")  # 1 sd per point when known: error bars in the figures
+    if psd is not None and len(psd) == px.size and px.size:
+        sd = np.full(x.size, np.nan)
+        sd[np.searchsorted(x, px)] = np.asarray(psd, dtype=float)
+        out["data_sd"] = _finite_list(sd)
     return out
 
 

@@ -32,7 +32,7 @@ __all__ = ["CONCORDANCE_REASONS", "SAME_BOUNDARY_UM", "add_pitfall_warnings", "e
 EXAMPLE_PRESSURE_MPA = 200.0
 
 #: two positions date the same boundary when closer than this (µm): the campaign's match distance
-#: (zoneprofile/campaign/_boundaries.py MATCH_UM; tests/test_fit_pitfalls.py keeps them equal)
+#: (zoneprofile/campaign/_boundaries.py MATCH_UM; tests/diffusion/test_fit_pitfalls.py keeps them equal)
 SAME_BOUNDARY_UM = 4.0
 
 #: why two elements of one boundary can give different times (the crystal model's concordance uses these too)

@@ -1,4 +1,4 @@
-"""The optimisers of a boundary fit: coarse search, variable projection, least squares, lmfit.
+"""The optimisers of a boundary fit: coarse search, variable projection, least squares.
 
 Shared by :mod:`~zoneprofile.diffusion.fitting`, the An-coupled tie
 (:mod:`~zoneprofile.diffusion._an`) and the uncertainty refits
@@ -11,6 +11,7 @@ and ``basis_jacobian_batch`` (:mod:`~zoneprofile.diffusion._problem`).
 from __future__ import annotations
 
 import warnings as _warnings
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -213,37 +214,101 @@ def _least_squares(model, y, weights, start, lower, upper, *, max_nfev=400):
     return sol.x, sol
 
 
-def _lmfit(model, y, weights, names, start, lower, upper, vary):
-    import lmfit
+@dataclass(frozen=True)
+class BestFit:
+    """The confirmed optimum of a boundary fit and the covariance of its varying parameters.
 
-    params = lmfit.Parameters()
-    for name, v, lo, hi, var in zip(names, start, lower, upper, vary):
-        v = float(np.clip(v, lo, hi))
-        params.add(name, value=v, min=lo, max=hi, vary=var)
+    ``theta``: every parameter (fixed ones at their start); ``vary``: which of
+    them were fitted; ``covar``: covariance of the varying ones, ``inv(JᵀJ)·χ²/(n − p)``
+    (None when ``JᵀJ`` is singular); ``stderr``: per parameter, the square root
+    of its covariance diagonal, 0 for a fixed one, None for all when there is
+    no covariance; ``chi2`` and ``redchi`` at ``theta``.
+    """
 
-    def resid(p):
-        theta = [p[n].value for n in names]
-        return (model.predict(theta) - y) * weights
+    names: tuple
+    theta: np.ndarray
+    vary: np.ndarray
+    covar: np.ndarray | None
+    stderr: tuple
+    chi2: float
+    redchi: float
+    nfev: int
+    success: bool
+    message: str
 
-    kws = {}
+    @property
+    def var_names(self) -> list:
+        return [n for n, v in zip(self.names, self.vary) if v]
+
+
+def _confirm_fit(model, y, weights, names, start, lower, upper, vary) -> BestFit:
+    """Least squares from a good start, bounds honoured, with the covariance of the varying parameters.
+
+    :func:`scipy.optimize.least_squares` (trust-region reflective, tolerances
+    1e-8, ``x_scale`` 1) on the varying parameters, the others held at their
+    start; the start is clipped into the bounds. Models that are not linear in
+    the values (no projection) give the forward-difference Jacobian that
+    ``jac='2-point'`` would take, integrated side by side with the residual
+    (:class:`_ResidualAndJacobian`).
+
+    The covariance is the Gauss–Newton one, ``C = (JᵀJ)⁻¹ · χ²/(n − p)``, with J
+    the Jacobian at the solution (the one ``least_squares`` returns) and the
+    reduced χ² of the weighted residuals (n points, p varying parameters; the
+    scaling makes it hold when the weights are only relative) — the convention
+    of lmfit's ``least_squares`` method (``scale_covar=True``), which
+    tests/diffusion/test_confirm_fit.py checks number for number.
+    """
+    from scipy.optimize import least_squares
+
+    names = tuple(names)
+    lower = np.asarray(lower, float)
+    upper = np.asarray(upper, float)
+    vary = np.asarray(vary, bool)
+    theta0 = np.array([float(np.clip(v, lo, hi)) for v, lo, hi in zip(start, lower, upper)])
+    free = np.flatnonzero(vary)
+    p = free.size
+
+    def full(x):
+        theta = theta0.copy()
+        theta[free] = x
+        return theta
+
     if hasattr(model, "jacobian_fd"):
         # not linear in the values (no projection): the forward-difference Jacobian that
         # least_squares would take, its parameter sets integrated side by side with the residual
-        free = np.flatnonzero(vary)
-        paired = _ResidualAndJacobian(model, y, weights, free, np.asarray(lower, float)[free],
-                                      np.asarray(upper, float)[free])
+        paired = _ResidualAndJacobian(model, y, weights, free, lower[free], upper[free])
 
-        def resid(p):  # noqa: F811 - the paired evaluation replaces the plain one
-            return paired.residual(np.array([p[n].value for n in names], float))
+        def resid(x):
+            return paired.residual(full(x))
 
-        def jacobian(p):
-            return paired.jacobian(np.array([p[n].value for n in names], float))
+        def jac(x):
+            return paired.jacobian(full(x))
+    else:
+        def resid(x):
+            return (model.predict(full(x)) - y) * weights
 
-        kws["Dfun"] = jacobian
+        jac = "2-point"
     with _warnings.catch_warnings():
         _warnings.simplefilter("ignore")
-        out = lmfit.minimize(resid, params, method="least_squares", **kws)
-    return out
+        sol = least_squares(resid, theta0[free], jac=jac, bounds=(lower[free], upper[free]), method="trf",
+                            max_nfev=2000 * (p + 1))
+    theta = full(sol.x)
+    r = resid(sol.x)
+    chi2 = float(np.sum(r * r))
+    redchi = chi2 / max(1, r.size - p)
+    covar = None
+    stderr = (None,) * len(names)
+    try:
+        covar = np.linalg.inv(sol.jac.T @ sol.jac) * redchi
+    except np.linalg.LinAlgError:
+        pass
+    else:
+        errs = np.zeros(len(names))
+        with np.errstate(invalid="ignore"):  # a negative diagonal (numerically singular): NaN, as lmfit gives
+            errs[free] = np.sqrt(np.diag(covar))
+        stderr = tuple(float(e) for e in errs)
+    return BestFit(names=names, theta=theta, vary=vary, covar=covar, stderr=stderr, chi2=chi2, redchi=redchi,
+                   nfev=int(sol.nfev), success=bool(sol.success), message=str(sol.message))
 
 
 def _profile_upper_log10_dt(model, y, weights, best, chi2, s2, log_hi, level=3.84):

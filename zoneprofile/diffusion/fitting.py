@@ -15,9 +15,10 @@ Procedure
    that does not depend on luck.
 2. Variable projection (:func:`_projected_fit`: log10 D·t, and the boundary
    when it varies, iterated with analytic derivatives; the values by linear
-   least squares at every step) finds the optimum; lmfit (``least_squares``,
-   bounds honoured, all parameters free) confirms it from there and gives the
-   covariance of every parameter.
+   least squares at every step) finds the optimum; scipy's ``least_squares``
+   (bounds honoured, all parameters free) confirms it from there, and the
+   Gauss–Newton covariance at the optimum gives every parameter's standard
+   error (:func:`~zoneprofile.diffusion._optimise._confirm_fit`).
 3. :mod:`~zoneprofile.diffusion.uncertainty` turns the fit into draws of time.
 
 Models asked for a few times only (trial positions of a boundary tied to an An
@@ -41,8 +42,8 @@ from zoneprofile._validation import InputError
 from zoneprofile.diffusion._an import _frozen_an, _tie_to_an_step
 from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for compatibility
     _coarse_start,
+    _confirm_fit,
     _least_squares,
-    _lmfit,
     _lstsq_many,
     _profile_upper_log10_dt,
     _projected_fit,
@@ -686,13 +687,13 @@ def _fit_boundary(
     vary = [True, not fixed, True, True]
     lm_start = start
     if hasattr(model0, "basis_predictions"):
-        # variable projection finds the optimum cheaply; lmfit then confirms it from there
-        # (a step or two) and gives the covariance of all parameters
+        # variable projection finds the optimum cheaply; least squares then confirms it from
+        # there (a step or two) and gives the covariance of all parameters
         refined = _refit_projected(model0, y, weights, np.array(start, float), lower, upper, vary)
         if np.all(refined >= lower) and np.all(refined <= upper):
             lm_start = refined
-    out = _lmfit(model0, y, weights, param_names, lm_start, lower, upper, vary)
-    best = np.array([out.params[n].value for n in param_names])
+    out = _confirm_fit(model0, y, weights, param_names, lm_start, lower, upper, vary)
+    best = out.theta.copy()
     pred = model0.predict(best)
     resid = (pred - y)
     chi2 = float(np.sum((resid * weights) ** 2))
@@ -714,18 +715,17 @@ def _fit_boundary(
 
     params_report = {}
     bounds_hit = []
-    for n, s0, lo_b, hi_b, var in zip(param_names, start, lower, upper, vary):
-        p = out.params[n]
+    for n, value_n, err_n, s0, lo_b, hi_b, var in zip(param_names, best, out.stderr, start, lower, upper, vary):
         span = hi_b - lo_b
         at = None
-        if var and p.value <= lo_b + 1e-4 * span:
+        if var and value_n <= lo_b + 1e-4 * span:
             at = "lower"
-        elif var and p.value >= hi_b - 1e-4 * span:
+        elif var and value_n >= hi_b - 1e-4 * span:
             at = "upper"
         if at:
             bounds_hit.append(n)
         params_report[n] = {
-            "value": float(p.value), "stderr": None if p.stderr is None else float(p.stderr),
+            "value": float(value_n), "stderr": None if err_n is None else float(err_n),
             "start": float(s0), "min": float(lo_b), "max": float(hi_b), "vary": bool(var), "at_bound": at,
         }
     for n in bounds_hit:
@@ -741,7 +741,7 @@ def _fit_boundary(
         "temperature_c": t0, "temperature_sd_c": t_sd, "draws": draws, "seed": seed,
         "obliquity_deg": obliquity_deg, "obliquity_sd_deg": float(obliquity_sd_deg or 0.0), "dip_deg": dip_deg,
         "path": path, "noise_refits": int(noise_refits), "resolution_var_um2": resolution_var_um2,
-        "log_bounds": (log_lo, log_hi), "lmfit": out,
+        "log_bounds": (log_lo, log_hi), "best_fit": out,
         "position_candidates": an_info.get("position_candidates") or [],
         "floor_delta_chi2": floor_delta_chi2,
         "profile_upper_log10_dt": upper_log10_dt,

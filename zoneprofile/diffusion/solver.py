@@ -37,7 +37,7 @@ Two solvers share one discretisation.
     seven complex tridiagonal solves (degree 14; uniform error below 1e-13 on
     ``[0, ∞)``, so this is exact in time too). Both paths agree to round-off,
     which grows with ``τ λ_max`` (the conditioning of ``e^{-τK}``); the bound is
-    derived in tests/test_solver_analytic.py.
+    derived in tests/diffusion/test_solver_analytic.py.
 
 ``evolve_nonlinear`` (D depends on the diffusing quantity, e.g. Fe–Mg in olivine)
     The same fluxes with ``d_rel(C)`` at the faces (arithmetic mean of the two

@@ -13,8 +13,8 @@ Each draw ``k`` combines
 - **analytical noise**: ``noise_refits`` refits of the best model plus
   resampled residuals (residual bootstrap, residuals inflated by
   √(n/(n−p))); each draw takes one refit's ``log10 τ`` offset, smoothed by a
-  small Gaussian kernel. For the implicit (non-linear) solver the lmfit
-  covariance is used instead (Laplace approximation) to keep it fast;
+  small Gaussian kernel. For the implicit (non-linear) solver the
+  least-squares covariance of the best fit is used instead (Laplace approximation) to keep it fast;
 - **obliquity** (when given): ``t_true = t_apparent · (sin φ · cos ψ)²``
   (REFERENCES §7), ψ ~ N(ψ, σ_ψ), φ = 90° unless given.
 
@@ -150,6 +150,10 @@ class FitResult(FitVocabulary):
                          f"[{p['min']:.4g}, {p['max']:.4g}]){flag}")
         budget = ", ".join(f"{k} {v:.3f}" for k, v in self.uncertainty_budget.items() if v is not None)
         lines.append(f"  sd of log10 time by source: {budget}")
+        if self.time_days.get("statement") != "date":
+            # the draws pile at the shortest time the model resolves, so their spread (total, clipped there)
+            # and each source's spread alone (not clipped) do not add up and do not describe the bound
+            lines.append("    (not a date: these spreads describe the draws, not the bound; read the bound above)")
         for w in self.warnings:
             lines.append(f"  warning: {w}")
         lines.append("  Diffusion timescales inform, and do not replace, hazard assessment, which belongs "
@@ -179,16 +183,16 @@ def _noise_offsets(ctx, rng):
     n, p = resid.size, int(vary.sum())
     at_floor = best[0] <= ctx["log_bounds"][0] + 0.1
     if problem.nonlinear and not at_floor:
-        out = ctx["lmfit"]
+        out = ctx["best_fit"]
         names = ctx["param_names"]
         var_names = [nm for nm, v in zip(names, vary) if v]
-        covar = getattr(out, "covar", None)
+        covar = out.covar
         if covar is not None and np.all(np.isfinite(covar)) and out.var_names == var_names:
             draws = rng.multivariate_normal(best[vary], covar, size=max(n_refits, 2000))
             thetas = np.tile(best, (draws.shape[0], 1))
             thetas[:, vary] = draws
             thetas = np.clip(thetas, lower, upper)
-            return thetas, "lmfit covariance (Laplace approximation)"
+            return thetas, "least-squares covariance (Laplace approximation)"
     if problem.nonlinear:
         # no usable covariance (e.g. at the lower bound of D·t): a few real refits
         n_refits = min(n_refits, 12)
@@ -343,15 +347,15 @@ def propagate(ctx) -> FitResult:
     if np.any(t_draw <= 0):
         t_draw = np.maximum(t_draw, 1.0)
     # noise part: a normal centred on the best fit with the larger of the refit scatter
-    # and the lmfit standard error (percentiles of a few dozen refits are too noisy to
+    # and the best fit's standard error (percentiles of a few dozen refits are too noisy to
     # trust in the tails); when the best fit sits on the lower bound of D·t the refits
     # are used as they are (a one-sided distribution: only an upper bound)
     spread = float(np.std(log_noise, ddof=1)) if log_noise.size > 2 else 0.0
     log_lo, log_hi = ctx["log_bounds"]
-    # at the upper bound of D·t (a profile relaxed to equilibrium fits best) lmfit's standard
+    # at the upper bound of D·t (a profile relaxed to equilibrium fits best) the fit's standard
     # error is not a standard error; nor is one wider than the whole range searched
     at_ceiling = best[0] >= log_hi - 0.1
-    stderr = ctx["lmfit"].params["log10_dt_m2"].stderr
+    stderr = ctx["best_fit"].stderr[0]
     usable = stderr is not None and np.isfinite(stderr) and stderr < log_hi - log_lo and not at_ceiling
     sd_noise = max(spread, float(stderr) if usable else 0.0)
     at_floor = best[0] <= log_lo + 0.1 or np.percentile(log_noise, 2.5) <= log_lo + 0.1

@@ -5,7 +5,7 @@ Every other module reads these facts from here: the diffusion-law registry
 elements a mineral can date, the value column of each), the command line and
 the fitting (value columns, whether An is needed), and the recalculation
 (main index). A test fails if a second table of minerals
-reappears elsewhere (``tests/test_mineral_registry.py``).
+reappears elsewhere (``tests/minerals/test_mineral_registry.py``).
 
 This module imports nothing heavy, so that ``zoneprofile --help`` stays fast.
 

@@ -9,7 +9,7 @@ import tifffile
 from zoneprofile import InputError
 from zoneprofile.maps import read_map
 
-FIX = Path(__file__).resolve().parent.parent / "fixtures" / "maps"
+FIX = Path(__file__).resolve().parents[2] / "fixtures" / "maps"
 
 
 @pytest.mark.parametrize("dtype", [np.uint8, np.uint16, np.int32, np.float32, np.float64])

@@ -12,7 +12,7 @@ from zoneprofile.io import read_profile
 
 from conftest import run_cli
 
-TABLES = Path(__file__).resolve().parent.parent / "fixtures" / "tables"
+TABLES = Path(__file__).resolve().parents[2] / "fixtures" / "tables"
 
 
 def test_recalc_csv_output_is_a_profile(tmp_path):

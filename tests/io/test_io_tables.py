@@ -10,7 +10,7 @@ from zoneprofile import InputError
 from zoneprofile.io import classify, parse_cell, read_analyses, read_profile, read_sheet_as_text
 from zoneprofile.traverse import read_traverse
 
-TABLES = Path(__file__).resolve().parent.parent / "fixtures" / "tables"
+TABLES = Path(__file__).resolve().parents[2] / "fixtures" / "tables"
 TRUTH = json.loads((TABLES / "truth.json").read_text())
 
 

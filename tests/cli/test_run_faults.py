@@ -25,7 +25,7 @@ from zoneprofile._outdir import MARKER, OutputFolder
 from zoneprofile._validation import InputError
 from zoneprofile.campaign import run_campaign
 
-HERE = Path(__file__).resolve().parent
+HERE = Path(__file__).resolve().parents[1]  # tests/
 DRIVER = HERE / "_fault_driver.py"
 sys.path.insert(0, str(HERE))
 from _fault_driver import write_campaign  # noqa: E402

@@ -273,7 +273,7 @@ def test_every_law_has_a_docs_page():
     # project rule (docs/design.md, "Documentation"): a page per diffusion law with citation and range
     from pathlib import Path
 
-    folder = Path(__file__).resolve().parents[1] / "docs" / "laws"
+    folder = Path(__file__).resolve().parents[2] / "docs" / "laws"
     index = (folder / "index.md").read_text(encoding="utf-8")
     for law in LAWS.values():
         page = (folder / f"{law.id}.md").read_text(encoding="utf-8")

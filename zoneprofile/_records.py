@@ -26,7 +26,7 @@ from typing import Literal, NotRequired, TypedDict
 __all__ = [
     "TimeSummary", "FitTime", "Curve", "BoundaryRecord", "Interval", "ZoneStep", "Zone", "ZonesPart",
     "ProfilePart", "TraceProfilePart", "MapBoundary", "MapPart", "ModelChoice", "CrystalModelBoundary",
-    "CrystalModelGap", "CrystalModelPart", "ModelCurve", "InputFile", "CrystalRecord", "PopulationSummary", "PopulationEvent",
+    "CrystalModelGap", "CrystalModelPart", "InputFile", "CrystalRecord", "PopulationSummary", "PopulationEvent",
     "ElementEvent", "EventMember",
     "valid_record", "STATEMENTS",
 ]
@@ -266,14 +266,6 @@ class CrystalModelCurve(TypedDict):
     grown: Values  # every zone as it grew, before any diffusion (the model's initial condition)
 
 
-class ModelCurve(TypedDict):
-    """One element's best joint fit of the whole-crystal model, for the figures."""
-
-    distance_um: Values  # µm from the rim
-    model: Values  # the profile as the spot sees it
-    grown: Values  # every zone as it grew, before any diffusion
-
-
 class CrystalModelPart(TypedDict):
     """``record["crystal_model"]`` (docs/whole-crystal-model.md)."""
 
@@ -293,7 +285,6 @@ class CrystalModelPart(TypedDict):
     chi2: Number
     n_points: int
     best_ages_days_at_nominal_temperature: Values
-    curves: NotRequired[dict[str, ModelCurve]]  # per element; absent from results made before it was kept
     curves: NotRequired[dict[str, CrystalModelCurve]]  # records cached before the curves were stored lack it
     laws: dict[str, str]
     uncertainty: str

@@ -31,13 +31,13 @@ def fit_figure(results, *, value_label, an=None, fmt="png") -> bytes:
         ax.plot(r.distance_um, r.model, color=_BLUE, lw=2.0, label="best fit (with spot)")
         ax.plot(r.data_distance_um, r.data_value, "o", ms=4, mfc="white", mec=_VERMILLION, mew=1.2,
                 label="data")
-        ax.axvline(r.boundary_um, color=_ORANGE, ls=":", lw=1.2)
+        ax.axvline(r.position_um, color=_ORANGE, ls=":", lw=1.2)
         t = r.time_days
         if r.resolved:
-            title = (f"{r.element}, boundary {r.boundary_um:.1f} µm: {_days_text(t['median'])} "
+            title = (f"{r.element}, boundary {r.position_um:.1f} µm: {_days_text(t['median'])} "
                      f"(95%: {format_days_range(t['p2_5'], t['p97_5'])}) at {r.temperature_c:g} °C")
         else:
-            title = (f"{r.element}, boundary {r.boundary_um:.1f} µm: not resolved, "
+            title = (f"{r.element}, boundary {r.position_um:.1f} µm: not resolved, "
                      f"< {_days_text(t.get('upper_bound'))}")
         ax.set_title(title, fontsize=9)
         ax.set_xlabel("Distance from rim (µm)")

@@ -189,7 +189,7 @@ def _boundary_entry(result, boundary, element, obliquity) -> BoundaryRecord:
     d = dict(result.to_dict())
     entry = dict(d)
     entry["position_um"] = boundary["position_um"]
-    entry["fitted_position_um"] = d.get("boundary_um")
+    entry["fitted_position_um"] = d.get("position_um")
     entry["kind"] = boundary["kind"]
     entry["recharge"] = boundary["recharge"]
     entry["element"] = element

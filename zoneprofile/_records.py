@@ -244,8 +244,8 @@ class ModelChoice(TypedDict):
 
 class CrystalModelBoundary(TypedDict):
     id: str  # B1, B2, ... oldest first
-    position_um: float  # fitted (µm)
-    given_position_um: float  # the zoning's
+    position_um: float  # µm from the rim: the zoning's (or the given) position, as in BoundaryRecord
+    fitted_position_um: float  # µm: where the model placed it (within the position window)
     age_days: TimeSummary  # the joint age of all elements
     by_element: dict[str, TimeSummary]
     concordance: dict  # {status, reasons}

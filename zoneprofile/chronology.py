@@ -23,6 +23,7 @@ from collections import defaultdict
 
 import numpy as np
 
+from zoneprofile._records import Interval, PopulationSummary  # the layouts returned, declared once
 from zoneprofile._validation import InputError
 from zoneprofile.event_model import population_events
 
@@ -68,7 +69,7 @@ def _position(boundary, index: int) -> float:
 
 
 # --------------------------------------------------------------------------- per crystal
-def crystal_intervals(boundaries, *, per_element: bool = True) -> list[dict]:
+def crystal_intervals(boundaries, *, per_element: bool = True) -> list[Interval]:
     """Time between successive dated recharge boundaries of one crystal.
 
     Parameters
@@ -420,7 +421,7 @@ def population_summary(
     bandwidth: float | None = None,
     grid_points: int = 256,
     seed: int = 0,
-) -> dict:
+) -> PopulationSummary:
     """Population statistics of boundary times, per sample and for the campaign.
 
     Parameters

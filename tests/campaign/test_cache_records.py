@@ -49,9 +49,9 @@ def _summary(median):
 def _crystal_record():
     """A record dated by the whole-crystal model (keys: docs/whole-crystal-model.md)."""
     one = {"status": "one element", "reasons": []}
-    cm = {"boundaries": [{"id": "B1", "position_um": 150.0, "given_position_um": 150.0, "age_days": _summary(180.0),
+    cm = {"boundaries": [{"id": "B1", "position_um": 150.0, "fitted_position_um": 150.0, "age_days": _summary(180.0),
                           "by_element": {"Mg": _summary(180.0)}, "concordance": one},
-                         {"id": "B2", "position_um": 30.0, "given_position_um": 30.0, "age_days": _summary(15.0),
+                         {"id": "B2", "position_um": 30.0, "fitted_position_um": 30.0, "age_days": _summary(15.0),
                           "by_element": {"Mg": _summary(15.0)}, "concordance": one}],
           "gaps": [{"older": "B1", "younger": "B2", "days": _summary(165.0)}], "elements": ["Mg"],
           "warnings": [], "method": "whole-crystal", "temperature_c": 1000.0, "temperature_sd_c": 20.0,

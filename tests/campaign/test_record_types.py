@@ -129,7 +129,7 @@ def test_a_damaged_crystal_model_part_reads_as_absent(demo):
     assert valid_record(record)
     for damage in (_set(("crystal_model", "boundaries", 0, "by_element", "Mg", "statement"), KeyError),
                    _set(("crystal_model", "gaps", 0, "days", "p2_5"), "1"),
-                   _set(("crystal_model", "boundaries", 0, "given_position_um"), KeyError),
+                   _set(("crystal_model", "boundaries", 0, "fitted_position_um"), KeyError),
                    _set(("model", "used"), "both")):
         assert not valid_record(damage(copy.deepcopy(record)))
 

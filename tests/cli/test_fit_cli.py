@@ -34,7 +34,7 @@ def test_fit_writes_json_and_figure(mg_profile, tmp_path):
     assert code == 0, err
     doc = json.loads(out.read_text())
     fit = doc["fits"][0]
-    for key in ("boundary_um", "element", "law", "temperature_c", "log10_dt_m2", "time_days", "resolved",
+    for key in ("position_um", "element", "law", "temperature_c", "log10_dt_m2", "time_days", "resolved",
                 "warnings"):
         assert key in fit
     assert set(fit["time_days"]) >= {"best", "median", "p2_5", "p16", "p84", "p97_5"}
@@ -77,7 +77,7 @@ def test_two_boundaries_two_fits_and_an_from_second_table(tmp_path):
         assert not any(w in f["warnings"] for f in doc["fits"])
     lines = [ln.strip() for ln in printed.splitlines() if ln.strip().startswith("warning:")]
     assert len(lines) == len(set(lines))
-    assert [round(f["boundary_um"]) for f in doc["fits"]] == [30, 50]
+    assert [round(f["position_um"]) for f in doc["fits"]] == [30, 50]
     assert doc["input"]["an_from"]["offset_um"] == 5
     assert doc["fits"][1]["model_setup"]["beam_shape"] == "square"
     # the real boundary (50 µm) is dated; the one at 30 µm sits in a plateau and is not resolved

@@ -46,7 +46,7 @@ def test_recharge_step_dated_not_the_larger_normal_step(tmp_path, capsys):
     fits, printed = _fit(path, tmp_path, capsys)
     assert len(fits) == 1
     (fit,) = fits
-    assert abs(fit["boundary_um"] - 60.0) < 3.0
+    assert abs(fit["position_um"] - 60.0) < 3.0
     assert fit["time_days"]["p2_5"] <= KW["time_days"] <= fit["time_days"]["p97_5"]
     warnings = " ".join(fit["warnings"])
     assert "step(s) left undated: 150.0 µm (normal)" in warnings
@@ -56,7 +56,7 @@ def test_recharge_step_dated_not_the_larger_normal_step(tmp_path, capsys):
 def test_two_equal_recharge_steps_are_both_dated(tmp_path, capsys):
     path = _table(tmp_path, [(60.0, 80.0, 84.0), (150.0, 76.0, 80.0)])
     fits, _ = _fit(path, tmp_path, capsys)
-    assert sorted(round(f["boundary_um"]) for f in fits) == pytest.approx([60, 150], abs=3)
+    assert sorted(round(f["position_um"]) for f in fits) == pytest.approx([60, 150], abs=3)
     for f in fits:
         assert f["time_days"]["p2_5"] <= KW["time_days"] <= f["time_days"]["p97_5"]
         assert not any("left undated" in w for w in f["warnings"])
@@ -69,6 +69,6 @@ def test_no_recharge_step_the_largest_is_dated_and_the_other_named(tmp_path, cap
     (fit,) = fits
     warnings = " ".join(fit["warnings"])
     assert "no recharge-like step" in warnings
-    other = 150.0 if abs(fit["boundary_um"] - 60.0) < 3.0 else 60.0
+    other = 150.0 if abs(fit["position_um"] - 60.0) < 3.0 else 60.0
     listed = re.search(r"step\(s\) left undated: ([0-9.]+) µm \(normal\)", warnings)
     assert listed and abs(float(listed.group(1)) - other) < 3.0

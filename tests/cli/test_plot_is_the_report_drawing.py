@@ -67,7 +67,7 @@ def test_fit_plot_is_the_report_figure_of_the_boundary(mg_profile, tmp_path, wid
     fit = json.loads(out.read_text())["fits"][0]
     # the campaign's record part for this boundary, made by the campaign's own code from the same fit
     entry = _boundary_entry(SimpleNamespace(to_dict=lambda: fit, time_draws_days=None),
-                            {"position_um": fit["boundary_um"], "kind": "reverse", "recharge": True}, "Mg", None)
+                            {"position_um": fit["position_um"], "kind": "reverse", "recharge": True}, "Mg", None)
     record = {"sample": "S", "crystal": "c1", "mineral": "plagioclase", "profile": None, "zones": None,
               "boundaries": [entry]}
     report_svg = crystal_figure_bytes(record, ("svg",), width=width)["svg"]

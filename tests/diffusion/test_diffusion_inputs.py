@@ -150,7 +150,7 @@ def test_auto_boundary_keeps_to_its_own_zones():
         1 + erf((x - 110.0) / (2 * math.sqrt(dt)))) / 2
     y = y + np.random.default_rng(0).normal(0, 0.2, x.size)
     r = fit_boundary(x, y, element="Ti", mineral="quartz", temperature_c=800.0, draws=50, noise_refits=5)
-    assert r.boundary_um == pytest.approx(110.0, abs=0.5)
+    assert r.position_um == pytest.approx(110.0, abs=0.5)
     assert r.setup["segment_um"][0] >= 40.0 + 2.5 * math.sqrt(2 * dt) - 1.0
     assert r.setup["window"]["dated_alone"] is True
     assert 10 ** (r.log10_dt_m2["best"] + 12) == pytest.approx(dt, rel=0.1)

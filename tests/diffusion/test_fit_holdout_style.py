@@ -201,7 +201,7 @@ def test_mg_truth_inside_95_percent_interval_without_temperature_sd(mg_fits):
         assert r.resolved
         assert r.time_days["p2_5"] <= t_true <= r.time_days["p97_5"], (r.time_days, t_true)
         # the element step sits on the An step, which the An points place to within a fraction of a µm
-        assert abs(r.boundary_um - b) < 0.5, (r.boundary_um, b)
+        assert abs(r.position_um - b) < 0.5, (r.position_um, b)
 
 
 def test_mg_median_unbiased_and_consistent_with_its_spread(mg_fits):

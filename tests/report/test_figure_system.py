@@ -96,7 +96,7 @@ def _fit_dict(resolved=True):
     curve = 100 + 20 / (1 + np.exp(-(grid - 40) / 4))
     td = ({"median": 20.0, "p2_5": 9.1, "p97_5": 41.0, "statement": "date", "upper_bound": None}
           if resolved else {"median": 1.1, "p2_5": 0.2, "p97_5": 2.4, "statement": "upper_bound", "upper_bound": 2.4})
-    return {"boundary_um": 40.0, "element": "Mg", "mineral": "plagioclase", "time_days": td, "resolved": resolved,
+    return {"position_um": 40.0, "element": "Mg", "mineral": "plagioclase", "time_days": td, "resolved": resolved,
             "curve": {"distance_um": grid.tolist(), "model": curve.tolist(), "initial": np.where(grid < 40, 100, 120).tolist(),
                       "band_low": (curve - 1).tolist(), "band_high": (curve + 1).tolist()},
             "points": {"distance_um": x.tolist(), "value": (model + 0.5).tolist()}}, x

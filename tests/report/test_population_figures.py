@@ -269,6 +269,8 @@ def test_print_files_sizes_and_resolution(population, tmp_path):
 
     with pytest.raises(InputError):
         pf.render_paper_figures(recs, pop, tmp_path / "bad", width="triple")
+    with pytest.raises(InputError):
+        pf.render_paper_figures(recs, pop, tmp_path / "bad", formats=("png", "gif"))
     assert not (tmp_path / "bad").exists()
     # nothing dated: nothing written
     empty = pf.render_paper_figures(recs[-2:], {"events": population_events(recs[-2:])}, tmp_path / "none")

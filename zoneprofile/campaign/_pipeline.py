@@ -25,6 +25,7 @@ from pathlib import Path
 import numpy as np
 
 from zoneprofile._output import to_jsonable
+from zoneprofile._records import BoundaryRecord, CrystalRecord  # the layouts made here, declared once
 from zoneprofile._validation import InputError
 from zoneprofile.campaign._boundaries import (
     match_position,
@@ -184,11 +185,11 @@ def _budget_options(params):
     )
 
 
-def _boundary_entry(result, boundary, element, obliquity):
+def _boundary_entry(result, boundary, element, obliquity) -> BoundaryRecord:
     d = dict(result.to_dict())
     entry = dict(d)
     entry["position_um"] = boundary["position_um"]
-    entry["fitted_position_um"] = d["boundary_um"]
+    entry["fitted_position_um"] = d.get("position_um")
     entry["kind"] = boundary["kind"]
     entry["recharge"] = boundary["recharge"]
     entry["element"] = element
@@ -217,7 +218,7 @@ def _materialise(task):
     return {**task, "inputs": inputs, "payload": None}, folder
 
 
-def process_crystal(task: dict) -> dict:
+def process_crystal(task: dict) -> CrystalRecord:
     """Run one crystal through every stage and return its record.
 
     Parameters
@@ -263,7 +264,7 @@ def process_crystal(task: dict) -> dict:
     return to_jsonable(record)
 
 
-def _base_record(task):
+def _base_record(task) -> CrystalRecord:
     return {
         "sample": task["sample"],
         "crystal": task["crystal"],

@@ -121,7 +121,7 @@ def run_several(args, names, run_single) -> int:
     for note in notes:
         x = float(note.split(" at ", 1)[1].split(" µm", 1)[0])
         for f in fits:  # once: the first fit of the pair, in --element order
-            if abs(float(f.boundary_um) - x) <= MATCH_UM + 0.05 and f.element in note:
+            if abs(float(f.position_um) - x) <= MATCH_UM + 0.05 and f.element in note:
                 f.warnings.append(note)
                 break
     from zoneprofile.cli._fit_notes import print_shared, take_shared

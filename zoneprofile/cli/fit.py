@@ -312,7 +312,7 @@ def _run_single(args, _collect=None):
             if plan is not None and b is None:
                 from zoneprofile.cli._fit_steps import left_after
 
-                left = left_after(plan, [result.boundary_um])
+                left = left_after(plan, [result.position_um])
                 if left:
                     result.warnings.insert(len(input_notes), left)
         except InputError as exc:

@@ -132,7 +132,7 @@ def _range_from(sentence: str) -> tuple[str, str]:
 def element_disagreement(fits) -> list[str]:
     """Warnings for pairs of elements dating the same boundary whose 95 % intervals do not overlap.
 
-    ``fits`` are FitResult-like objects with ``element``, ``boundary_um`` and
+    ``fits`` are FitResult-like objects with ``element``, ``position_um`` and
     ``time_days`` percentiles. Two fits date the same boundary when their
     positions are within 4 µm (the campaign's match distance). Disagreement:
     the 95 % intervals do not overlap (each time outside the other's interval
@@ -143,14 +143,14 @@ def element_disagreement(fits) -> list[str]:
     for i in range(len(items)):
         for j in range(i + 1, len(items)):
             a, b = items[i], items[j]
-            if a.element == b.element or abs(float(a.boundary_um) - float(b.boundary_um)) > SAME_BOUNDARY_UM:
+            if a.element == b.element or abs(float(a.position_um) - float(b.position_um)) > SAME_BOUNDARY_UM:
                 continue
             (la, ha), (lb, hb) = _interval(a), _interval(b)
             if la > hb or lb > ha:
                 older, younger = (a, b) if la > hb else (b, a)
                 out.append(
                     f"growth or diffusion? {older.element} and {younger.element} date the boundary at "
-                    f"{float(a.boundary_um):.1f} µm differently: {older.element} "
+                    f"{float(a.position_um):.1f} µm differently: {older.element} "
                     f"{_interval(older)[0]:.3g}–{_interval(older)[1]:.3g} d, {younger.element} "
                     f"{_interval(younger)[0]:.3g}–{_interval(younger)[1]:.3g} d (95 %, intervals apart); "
                     + _growth_reasons())

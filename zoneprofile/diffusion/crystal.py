@@ -836,7 +836,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
     for k in range(n):
         per = {el: by_element[el]["ages"][k] for el in names}
         conc = _concordance({el: (per[el], by_element[el]["draws"][:, k]) for el in names})
-        record_b.append({"id": f"B{k + 1}", "position_um": float(pos_fit[k]), "given_position_um": float(pos[k]),
+        record_b.append({"id": f"B{k + 1}", "position_um": float(pos[k]), "fitted_position_um": float(pos_fit[k]),
                          "age_days": age_j[k], "by_element": per, "concordance": conc,
                          "shared_sd_log10": float(np.std(np.log10(f_shared[:, k])))})
         if conc["status"] == "discordant":

@@ -46,7 +46,7 @@ _UNDIFFUSED_DCHI2 = 3.84
 class FitResult(FitVocabulary):
     """One dated boundary. ``to_dict()`` is one entry of FIT.json ``fits[]``."""
 
-    boundary_um: float
+    position_um: float
     element: str
     law: str
     temperature_c: float
@@ -83,7 +83,7 @@ class FitResult(FitVocabulary):
 
     def to_dict(self) -> dict:
         return {
-            "boundary_um": self.boundary_um,
+            "position_um": self.position_um,
             "element": self.element,
             "mineral": self.setup.get("mineral"),
             "law": self.law,
@@ -121,7 +121,7 @@ class FitResult(FitVocabulary):
         """A readable summary: what was fitted, the time with its interval, and the caveats."""
         t = self.time_days
         lines = [
-            f"Boundary at {self.boundary_um:.2f} µm: {self.element} in {self.setup.get('mineral')}, "
+            f"Boundary at {self.position_um:.2f} µm: {self.element} in {self.setup.get('mineral')}, "
             f"law {self.law} ({self.setup.get('law_status')})",
             f"  temperature {self.temperature_c:g} ± {self.temperature_sd_c:g} °C; "
             f"D_ref = {self.d_ref_m2_s:.3e} m²/s at {self.setup.get('reference_composition')}",
@@ -642,7 +642,7 @@ def propagate(ctx) -> FitResult:
         band_low = band_high = curve.copy()
 
     return FitResult(
-        boundary_um=float(best[1]), element=problem.element, law=law.id, temperature_c=t0,
+        position_um=float(best[1]), element=problem.element, law=law.id, temperature_c=t0,
         temperature_sd_c=t_sd, log10_dt_m2=ld, time_days=td, resolved=resolved, warnings=warnings,
         time_draws_days=time_days, log10_dt_draws=log_dt_draws, distance_um=xc, model=curve,
         initial=initial, band_low=band_low, band_high=band_high, data_distance_um=x.copy(),

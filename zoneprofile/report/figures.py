@@ -659,7 +659,7 @@ def boundary_entry(fit, *, value_sd=None, distance_um=None) -> dict:
         px = np.asarray(points["distance_um"], dtype=float)
         k = np.clip(np.searchsorted(xs, px), 0, max(xs.size - 1, 0))
         points["sd"] = np.where(np.isclose(xs[k], px, rtol=0, atol=1e-9), sds[k], np.nan).tolist()
-    return {"element": d.get("element"), "mineral": d.get("mineral"), "position_um": d.get("boundary_um"),
+    return {"element": d.get("element"), "mineral": d.get("mineral"), "position_um": d.get("position_um"),
             "time_days": d.get("time_days"), "resolved": d.get("resolved", True),
             "curve": merged_curve(d.get("curve") or {}, points)}
 

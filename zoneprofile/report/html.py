@@ -27,7 +27,7 @@ from zoneprofile.report.timetext import resolved_text, time_range_text, time_sta
 __all__ = ["build_html", "collect_warnings"]
 
 # a long unbroken name (sample, crystal, file path, checksum) may break anywhere inside a table cell, so that
-# no table grows wider than the page (tests/test_browser.py checks this at a 1400 px window)
+# no table grows wider than the page (tests/report/test_browser.py checks this at a 1400 px window)
 _TABLE_CSS = "th,td{overflow-wrap:anywhere}"
 
 

@@ -3,7 +3,7 @@
 Two figures, drawn on the report's canvas (:mod:`zoneprofile.report._canvas`)
 in the report's palette (:mod:`zoneprofile.report.style`), at a print width
 (single column 90 mm, double column 180 mm), written the figure system's way
-(:func:`zoneprofile.report.figures.canvas_bytes`: PNG at 300 dpi, SVG with its
+(as :func:`zoneprofile.report.figures.canvas_bytes`: PNG at 300 dpi, SVG with its
 size in points and text as text, PDF on request):
 
 * **event ladders** (``ladders.*``): every crystal that has a dated boundary or
@@ -70,9 +70,11 @@ _NO_EVENT = (SERIES["unresolved"][0], "o")
 
 
 def _width_px(width) -> float:
-    from zoneprofile.report.figures import figure_width_px  # checks the choice (single | double)
+    """Canvas pixels of a print width, the choice checked (as ``figures.figure_width_px``, which this module
+    does not import: report.figures reaches the campaign package, and the report page imports this module)."""
+    from zoneprofile._limits import check_choice
 
-    return figure_width_px(width)
+    return FIGURE_WIDTH_IN[check_choice("figure_width", width, "figure width")] * DPI
 
 
 def _natural(text) -> tuple:
@@ -585,10 +587,8 @@ def profile_pages(records, population, *, width: str = "double") -> list[Profile
 
 # --------------------------------------------------------------------------- output
 def _bytes(canvas: Canvas, fmt: str) -> bytes:
-    """The report's one way to write a drawing: PNG at the print resolution, SVG and PDF with text as text."""
-    from zoneprofile.report.figures import canvas_bytes
-
-    return canvas_bytes(canvas, fmt)
+    """As ``figures.canvas_bytes``: PNG at the print resolution, SVG and PDF with text as text."""
+    return canvas.png(dpi=FIGURE_PNG_DPI) if fmt == "png" else getattr(canvas, fmt)()
 
 
 @dataclass
@@ -608,7 +608,13 @@ class PaperFigures:
 
 def render_paper_figures(records, population, fig_dir, *, formats=("png",), width: str = "double") -> PaperFigures:
     """Write ``ladders.<fmt>`` and ``profiles-<page>.<fmt>`` into ``fig_dir`` (nothing when no crystal is dated)."""
-    _width_px(width)  # an unknown width is refused before anything is drawn
+    _width_px(width)  # an unknown width or format is refused before anything is drawn
+    formats = [str(f).lower().lstrip(".") for f in formats]
+    for f in formats:
+        if f not in ("png", "svg", "pdf"):
+            from zoneprofile._validation import InputError
+
+            raise InputError(f"unknown figure format '{f}'; choose from png, svg, pdf")
     fig_dir = Path(fig_dir)
     out = PaperFigures(width=width)
     lad = ladder_figure(records, population, width=width)

@@ -23,23 +23,26 @@ __all__ = ["crystal_stage", "crystal_first"]
 
 
 def _element_data(name, params, table, trace, map_profile):
-    """(x, values, beam, shape) for one value column, from the same source the per-boundary fits use."""
-    from zoneprofile.campaign._frames import _column
+    """(x, values, beam, shape, sd) for one value column, from the same source the per-boundary fits use
+    (``sd`` the source's ``{name}_sd`` column, or None)."""
+    from zoneprofile.campaign._frames import _column, _column_sd
 
     if table is not None and _column(table, name) is not None:
         return (np.asarray(table["distance_um"], float), _column(table, name), params.get("beam_um"),
-                params.get("beam_shape", "gaussian"))
+                params.get("beam_shape", "gaussian"), _column_sd(table, name))
     if trace is not None and _column(trace, name) is not None:
         return (np.asarray(trace["distance_um"], float), _column(trace, name), params.get("trace_beam_um"),
-                params.get("trace_beam_shape", "square"))
+                params.get("trace_beam_shape", "square"), _column_sd(trace, name))
     if map_profile is not None and _column(map_profile, name) is not None:
-        return np.asarray(map_profile["distance_um"], float), _column(map_profile, name), None, "gaussian"
+        return (np.asarray(map_profile["distance_um"], float), _column(map_profile, name), None, "gaussian",
+                _column_sd(map_profile, name))
     return None
 
 
 def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile, an, an_x, an_beam,
                   map_obliquity=()):
     """Fit the whole-crystal model to a crystal's dated boundaries; the result goes into ``record``."""
+    from zoneprofile.campaign._frames import usable_sd
     from zoneprofile.minerals.registry import value_column
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.draws import sample_seed
@@ -56,9 +59,12 @@ def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile
         if data is None:
             missing.append(element)
             continue
-        x, v, beam, shape = data
+        x, v, beam, shape, sd = data
         keep = np.isfinite(x) & np.isfinite(v)
         profiles[element] = {"distance_um": x[keep], "value": v[keep], "beam_um": beam, "beam_shape": shape}
+        sd = usable_sd(x, v, sd, value_column(element, mineral), record["warnings"])
+        if sd is not None:
+            profiles[element]["sd"] = sd
     if missing:
         record["warnings"].append(f"whole-crystal model: no values for {', '.join(missing)}; fitted without")
     if not profiles:

@@ -32,7 +32,7 @@ from zoneprofile.campaign._boundaries import (
     position_window,
     select_boundaries,
 )
-from zoneprofile.campaign._frames import _column
+from zoneprofile.campaign._frames import _column, _column_sd, usable_sd
 from zoneprofile.campaign._pictures import calibrated_image, render_figures, render_map
 
 __all__ = ["process_crystal", "boundary_seed", "STAGES"]
@@ -137,7 +137,7 @@ def _read_map(task, params, column):
 
 
 def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window, neighbours, beam, shape,
-             obliquity, obliquity_sd, seed):
+             obliquity, obliquity_sd, seed, value_sd=None):
     from zoneprofile.diffusion import fit_boundary
 
     law = params.get("laws", {}).get(element)
@@ -146,6 +146,7 @@ def _fit_one(x, v, *, element, task, params, an, an_x, an_beam, position, window
     return fit_boundary(
         x_keep,
         v[keep],
+        value_sd=value_sd,  # at the kept analyses (campaign/_frames.usable_sd), or None
         element=element,
         mineral=task["mineral"],
         temperature_c=params["temperature_c"],
@@ -331,7 +332,8 @@ def _stages(task, record, transient):
         from zoneprofile.io.columns import TRACE_ELEMENTS
 
         wanted = sorted(set(value_columns.values()) | {column} | {f"{e}_ppm" for e in TRACE_ELEMENTS})
-        trace = _run_stage("reading trace table", _read_trace, task, params, wanted, timing=timing)
+        precisions = [f"{name}_sd" for name in value_columns.values()]  # 1 sigma, used by the fits when complete
+        trace = _run_stage("reading trace table", _read_trace, task, params, wanted + precisions, timing=timing)
         block = {"distance_um": _finite_list(trace["distance_um"])}
         for name in wanted:
             if name in trace.columns:
@@ -494,12 +496,12 @@ def _stages(task, record, transient):
         neighbours = [p for p in all_positions if abs(p - boundary["position_um"]) > 1e-9]
         for element in params["elements"]:
             name = value_columns[element]
-            x = v = None
+            x = v = sd = None
             beam, shape = params.get("beam_um"), params.get("beam_shape", "gaussian")
             if table is not None and _column(table, name) is not None:
-                x, v = np.asarray(table["distance_um"], float), _column(table, name)
+                x, v, sd = np.asarray(table["distance_um"], float), _column(table, name), _column_sd(table, name)
             elif trace is not None and _column(trace, name) is not None:
-                x, v = np.asarray(trace["distance_um"], float), _column(trace, name)
+                x, v, sd = np.asarray(trace["distance_um"], float), _column(trace, name), _column_sd(trace, name)
                 beam, shape = params.get("trace_beam_um"), params.get("trace_beam_shape", "square")
                 if beam is None:
                     note = ("trace_beam_um not given: the LA-ICP-MS spot size is not convolved into the model, "
@@ -508,6 +510,7 @@ def _stages(task, record, transient):
                         warnings.append(note)
             elif map_profile is not None and _column(map_profile, name) is not None:
                 x, v = np.asarray(map_profile["distance_um"], float), _column(map_profile, name)
+                sd = _column_sd(map_profile, name)
                 beam = None
             if x is None:
                 failures.append(f"{element} at {boundary['position_um']:.1f} µm: no '{name}' values in the inputs")
@@ -518,7 +521,8 @@ def _stages(task, record, transient):
                 result = _fit_one(x, v, element=element, task=task, params=params, an=an, an_x=an_x,
                                   an_beam=an_beam, position=boundary["position_um"], window=window,
                                   neighbours=neighbours, beam=beam, shape=shape, obliquity=obliquity,
-                                  obliquity_sd=obliquity_sd, seed=seed)
+                                  obliquity_sd=obliquity_sd, seed=seed,
+                                  value_sd=usable_sd(x, v, sd, name, warnings))
                 fitted.append(_boundary_entry(result, boundary, element, obliquity))
             except (KeyboardInterrupt, SystemExit, MemoryError):
                 raise

@@ -130,3 +130,26 @@ def test_crystal_the_model_refuses_falls_back_to_per_boundary_fits(tmp_path, mon
     assert rec["model"]["used"] == "boundary" and "not run" in rec["model"]["note"]
     assert any("whole-crystal model not run: boundaries closer" in w for w in rec["warnings"])
     assert len(rec["boundaries"]) == 2 and len(rec["recharge_intervals_days"]) == 1
+
+
+def test_the_zonings_undated_an_steps_reach_the_crystal_model(tmp_path, monkeypatch):
+    """Demo crystal p02 (invented) has a normal An step near 297 µm inside the zone of its older recharge:
+    the campaign hands it to the model as a place where the frozen An steps (docs/whole-crystal-model.md)."""
+    import zoneprofile.diffusion.crystal as crystal_module
+    from zoneprofile.campaign._pipeline import process_crystal
+
+    seen = []
+    original = crystal_module.fit_crystal
+
+    def spy(*args, **kwargs):
+        seen.append(kwargs)
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(crystal_module, "fit_crystal", spy)
+    (task,) = _demo_tasks(tmp_path, "crystal", {"p02"})
+    rec = process_crystal(task)
+    assert rec["error"] is None and rec["crystal_model"] is not None
+    splits = seen[0]["an_splits_um"]
+    dated = [b["position_um"] for b in rec["crystal_model"]["boundaries"]]
+    assert splits and any(abs(s - 297.0) < 5.0 for s in splits)
+    assert all(abs(s - p) > 1e-6 for s in splits for p in dated)

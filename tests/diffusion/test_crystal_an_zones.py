@@ -102,3 +102,30 @@ def test_forward_model_agrees_with_the_independent_one_at_the_true_parameters():
         # 80 µm beyond the traverse) the two models agree to 0.1 noise sd (before: Sr 0.25)
         near = em.x_um < depths[0] + 20.0
         assert rel[near].max() <= 0.1 * noise, (em.element, rel[near].max() / noise)
+
+
+def test_an_steps_inside_a_zone_where_the_zoning_found_an_undated_step():
+    """A normal step inside the core zone (An 62 → 50 at 40 µm, no recharge) is kept as a step: each
+    stretch is its own line (here flat), exact away from the step by more than the guard (the beam leaks
+    12·Φ(−3) = 0.016 mol% into the points kept, scipy's normal cdf). Without the split the zone is one
+    line through both levels, wrong by several mol% at either end."""
+    boundary, split = 14.0, 40.0
+    x = np.arange(0.0, 80.0, 2.0)
+    # each side of each step seen through the beam: the shares of a Gaussian spot (exact for flat zones)
+    an = (80.0 * ndtr((boundary - x) / SIG) + 50.0 * (ndtr((split - x) / SIG) - ndtr((boundary - x) / SIG))
+          + 62.0 * ndtr((x - split) / SIG))
+    guards = (3.0 * SIG, 2.0 * SIG, 1.5 * SIG)
+    centres = np.arange(15.0, 79.0, 1.0)
+    far = np.abs(centres - split) > 3.0 * SIG
+    want = np.where(centres < split, 50.0, 62.0)
+    tol = 12.0 * ndtr(-3.0) + 0.01
+    split_zones = AnZones(x, an, [boundary], 80.0, guards, splits_um=[split])
+    got = 100.0 * split_zones.cells(centres, np.zeros(centres.size, int))
+    assert np.max(np.abs(got - want)[far]) <= tol
+    one_line = 100.0 * AnZones(x, an, [boundary], 80.0, guards).cells(centres, np.zeros(centres.size, int))
+    assert np.max(np.abs(one_line - want)[far]) > 3.0
+    # the step across the dated boundary is measured on the stretch next to it: |80 - 50|
+    assert split_zones.step_sizes() == pytest.approx([30.0], abs=tol)
+    # a split at the dated boundary itself (within the widest guard) is the boundary, not a second step
+    same = AnZones(x, an, [boundary], 80.0, guards, splits_um=[boundary + 1.0])
+    assert len(same.zones[0][1]) == 1

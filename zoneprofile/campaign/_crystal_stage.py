@@ -39,6 +39,16 @@ def _element_data(name, params, table, trace, map_profile):
     return None
 
 
+def _undated_an_steps(record, positions):
+    """The zoning's An steps that are not dated boundaries: the frozen An steps there too
+    (``fit_crystal(an_splits_um=...)``); none when the zoning column is not An."""
+    zones = record.get("zones")
+    if not zones or zones["column"] != "An":
+        return None
+    return [float(s["position_um"]) for s in zones["steps"]
+            if s["position_um"] is not None and all(abs(s["position_um"] - p) > 1e-6 for p in positions)] or None
+
+
 def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile, an, an_x, an_beam,
                   map_obliquity=()):
     """Fit the whole-crystal model to a crystal's dated boundaries; the result goes into ``record``."""
@@ -83,7 +93,8 @@ def crystal_stage(record, boundaries, params, task, *, table, trace, map_profile
             draws=int(params["draws"]), seed=int(params["seed"]),
             temperature_seed=sample_seed(int(params.get("campaign_seed", 0)), task["sample"]),
             obliquity="section" if obliquity is None else float(obliquity),
-            fo2_pa=params.get("fo2_pa"), pressure_mpa=params.get("pressure_mpa"))
+            fo2_pa=params.get("fo2_pa"), pressure_mpa=params.get("pressure_mpa"),
+            an_splits_um=_undated_an_steps(record, positions))
     except (KeyboardInterrupt, SystemExit, MemoryError):
         raise
     except InputError as exc:

@@ -97,66 +97,84 @@ class AnZones:
     scatter) is used, else the narrowest that leaves one; the
     cell values are then interpolated at the cell centres, so they move
     smoothly with the boundaries.
+
+    ``splits_um`` are fixed places inside zones where An steps without a
+    recharge (the zoning's undated steps, e.g. a normal step): a zone is then
+    one straight line per segment between them, with the same guards at each
+    split, so the partitioning (K depends on An) steps there as the crystal did
+    instead of being smeared along one line. A split closer to a zone's edge
+    than the widest guard is ignored (it is the boundary itself).
     """
 
-    def __init__(self, an_x, an_values, positions_um, end_um, guard_um):
+    def __init__(self, an_x, an_values, positions_um, end_um, guard_um, splits_um=()):
         ax = np.asarray(an_x, float)
         av = np.asarray(an_values, float) / 100.0
         pos = np.asarray(positions_um, float)
         # the widest guard that leaves a line's worth of points (4), else the narrowest leaving one
         guards = sorted(np.atleast_1d(np.asarray(guard_um, float)).tolist(), reverse=True)
+        splits = np.sort(np.asarray([v for v in np.atleast_1d(np.asarray(splits_um, float)) if np.isfinite(v)]))
         # the rim (distance 0) is an edge too: a spot there sees partly outside the crystal
         rim = min(0.0, float(ax.min())) - 1e-9
         edges = np.concatenate([[np.inf if end_um is None else max(end_um, ax.max()) + 1.0], pos, [rim]])
         # zone z lies between edges[z + 1] (rimward) and edges[z] (coreward); zone 0 the core
-        self.zones = []
-        self.lines = []
+        self.zones = []  # per zone: its segments, rimward first: (inner splits, [(zx, zv, line), ...])
         for z in range(pos.size + 1):
             lo, hi = edges[z + 1], edges[z]
-            inside = (ax > lo) & (ax < hi)
-            pick = inside
-            for g in guards:
-                guarded = inside & (ax > lo + g) & (ax < hi - g)
-                if np.count_nonzero(guarded) >= (4 if g > guards[-1] else 1):
-                    pick = guarded
-                    break
-            if not np.any(pick):
-                centre = 0.5 * (max(lo, ax.min()) + min(hi, ax.max()))
-                pick = np.zeros(ax.size, bool)
-                pick[int(np.argmin(np.abs(ax - centre)))] = True
-            zx, zv = ax[pick], av[pick]
-            line = None
-            if zx.size >= 4:
-                # a straight line through the zone's points: the zone's own trend, not its noise;
-                # it is carried up to the zone's edges (the points near an edge were left out)
-                # (a slope within two standard errors of zero is noise: the zone is then flat)
-                t = zx - zx.mean()
-                coef = np.polyfit(t, zv, 1)
-                resid = zv - np.polyval(coef, t)
-                se = math.sqrt(float(resid @ resid) / (zx.size - 2) / float(t @ t))
-                if abs(coef[0]) < 2.0 * se:
-                    coef = np.array([0.0, float(np.mean(zv))])
-                line = (coef, zx.mean())
-                zv = np.polyval(coef, t)
-            self.zones.append((zx, zv))
-            self.lines.append(line)
+            inner = [float(v) for v in splits if lo + guards[0] < v < hi - guards[0]]
+            bounds = [lo, *inner, hi]
+            segments = [self._segment(ax, av, a, b, guards) for a, b in zip(bounds[:-1], bounds[1:])]
+            self.zones.append((np.asarray(inner, float), segments))
         self.x_ref = float(np.mean(av))
+
+    @staticmethod
+    def _segment(ax, av, lo, hi, guards):
+        """The points of one stretch between ``lo`` and ``hi`` (guarded) and its line (or None)."""
+        inside = (ax > lo) & (ax < hi)
+        pick = inside
+        for g in guards:
+            guarded = inside & (ax > lo + g) & (ax < hi - g)
+            if np.count_nonzero(guarded) >= (4 if g > guards[-1] else 1):
+                pick = guarded
+                break
+        if not np.any(pick):
+            centre = 0.5 * (max(lo, ax.min()) + min(hi, ax.max()))
+            pick = np.zeros(ax.size, bool)
+            pick[int(np.argmin(np.abs(ax - centre)))] = True
+        zx, zv = ax[pick], av[pick]
+        line = None
+        if zx.size >= 4:
+            # a straight line through the stretch's points: its own trend, not its noise;
+            # it is carried up to the stretch's edges (the points near an edge were left out)
+            # (a slope within two standard errors of zero is noise: the stretch is then flat)
+            t = zx - zx.mean()
+            coef = np.polyfit(t, zv, 1)
+            resid = zv - np.polyval(coef, t)
+            se = math.sqrt(float(resid @ resid) / (zx.size - 2) / float(t @ t))
+            if abs(coef[0]) < 2.0 * se:
+                coef = np.array([0.0, float(np.mean(zv))])
+            line = (coef, zx.mean())
+            zv = np.polyval(coef, t)
+        return zx, zv, line
 
     def cells(self, centres_um, zone_of_cells):
         out = np.empty(centres_um.size)
-        for z, ((zx, zv), line) in enumerate(zip(self.zones, self.lines)):
-            sel = zone_of_cells == z
-            if line is None:
-                out[sel] = np.interp(centres_um[sel], zx, zv)
-            else:
-                out[sel] = np.clip(np.polyval(line[0], centres_um[sel] - line[1]), 0.0, 1.0)
+        for z, (inner, segments) in enumerate(self.zones):
+            sel = np.flatnonzero(zone_of_cells == z)
+            seg_of = np.searchsorted(inner, centres_um[sel], side="right") if inner.size else np.zeros(sel.size, int)
+            for j, (zx, zv, line) in enumerate(segments):
+                cells = sel[seg_of == j]
+                if line is None:
+                    out[cells] = np.interp(centres_um[cells], zx, zv)
+                else:
+                    out[cells] = np.clip(np.polyval(line[0], centres_um[cells] - line[1]), 0.0, 1.0)
         return out
 
     def step_sizes(self):
         """|ΔAn| (mol%) across each boundary (means of the two zones' points nearest it), oldest first."""
         out = []
         for k in range(len(self.zones) - 1):
-            inner, outer = self.zones[k], self.zones[k + 1]
+            inner = self.zones[k][1][0]  # the core-side zone's stretch next to the boundary
+            outer = self.zones[k + 1][1][-1]  # the rim-side zone's stretch next to it
             a = inner[1][np.argsort(inner[0])][:3].mean()
             b = outer[1][np.argsort(outer[0])][-3:].mean()
             out.append(100.0 * abs(a - b))

@@ -443,7 +443,8 @@ def _local_noise_sd(y, noise, floor_fraction=0.2):
 def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_sd_c=0.0, an_distance_um=None,
                 an=None, an_beam_um=None, an_beam_shape="gaussian", rim="open", laws=None,
                 partition="bindeman1998", draws=1000, seed=0, temperature_seed=None, obliquity="section",
-                position_window_um=None, cell_um=None, fo2_pa=None, pressure_mpa=None, min_melt_contrast=0.1):
+                position_window_um=None, cell_um=None, fo2_pa=None, pressure_mpa=None, min_melt_contrast=0.1,
+                an_splits_um=None):
     """Fit the whole-crystal model to one traverse and date every event.
 
     Parameters
@@ -477,6 +478,11 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         used only where an element shows no contrast at a boundary (equilibrium):
         the lower bound is the time a contrast this large needs to disappear
         (default 0.1; a project default, not a published value).
+    an_splits_um : sequence of float, optional
+        Places inside zones where An steps without a recharge (the zoning's
+        undated steps): the frozen An is one straight line per stretch between
+        them, so the An-dependent partitioning steps there too (a normal step
+        inside a zone otherwise smears into the zone's one line).
 
     Returns
     -------
@@ -614,7 +620,7 @@ def fit_crystal(profiles, *, mineral, positions_um, temperature_c, temperature_s
         # gradient at the boundary, which the fit takes for diffusion (docs/whole-crystal-model.md)
         sig_an = beam_sigma_um(an_beam_um, an_beam_shape)
         guard = (3.0 * sig_an, 2.0 * sig_an, 1.5 * sig_an)
-        an_zones = AnZones(ax, av, pos, x_max, guard)
+        an_zones = AnZones(ax, av, pos, x_max, guard, splits_um=() if an_splits_um is None else an_splits_um)
         if np.ptp(av) > 0 and ax.size >= 6:
             an_sd = max(_noise_sd(av), 0.3)
             an_data = (ax, av, np.full(ax.size, 1.0 / an_sd), an_beam_um, an_beam_shape)

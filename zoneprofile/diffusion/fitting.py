@@ -51,6 +51,7 @@ from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for co
     _ResidualAndJacobian,
 )
 from zoneprofile.diffusion import _window
+from zoneprofile.diffusion._state import FitState
 from zoneprofile.diffusion._steps import _noise_sd, _side_means, find_boundaries
 from zoneprofile.diffusion.uncertainty import propagate
 from zoneprofile.minerals.registry import REGISTRY as MINERAL_TABLE
@@ -735,19 +736,17 @@ def _fit_boundary(
 
     sig2 = beam_variance_um2(beam_um, beam_shape)
     resolution_var_um2 = sig2 + spacing**2 / 12.0
-    context = {
-        "problem": problem, "model": model0, "best": best, "lower": lower, "upper": upper, "vary": vary,
-        "weights": weights, "residuals": resid, "pred": pred, "param_names": param_names,
-        "temperature_c": t0, "temperature_sd_c": t_sd, "draws": draws, "seed": seed,
-        "obliquity_deg": obliquity_deg, "obliquity_sd_deg": float(obliquity_sd_deg or 0.0), "dip_deg": dip_deg,
-        "path": path, "noise_refits": int(noise_refits), "resolution_var_um2": resolution_var_um2,
-        "log_bounds": (log_lo, log_hi), "best_fit": out,
-        "position_candidates": an_info.get("position_candidates") or [],
-        "floor_delta_chi2": floor_delta_chi2,
-        "profile_upper_log10_dt": upper_log10_dt,
-        "budget_options": options, "defaults_used": defaults_used,
-        "an_inputs": None if x_an_cells is None or an_vals is None else {"values": an_vals},
-    }
+    state = FitState(
+        problem=problem, model=model0, best=best, lower=lower, upper=upper, vary=tuple(bool(v) for v in vary),
+        param_names=tuple(param_names), best_fit=out, weights=weights, residuals=resid, pred=pred,
+        log_bounds=(log_lo, log_hi), floor_delta_chi2=floor_delta_chi2, profile_upper_log10_dt=upper_log10_dt,
+        position_candidates=tuple(an_info.get("position_candidates") or ()),
+        resolution_var_um2=resolution_var_um2,
+        an_values=None if x_an_cells is None or an_vals is None else an_vals,
+        temperature_c=t0, temperature_sd_c=t_sd, path=path, obliquity_deg=obliquity_deg,
+        obliquity_sd_deg=float(obliquity_sd_deg or 0.0), dip_deg=dip_deg, draws=draws, seed=seed,
+        noise_refits=int(noise_refits), budget_options=options, defaults_used=defaults_used,
+    )
     if sd is None:
         warnings.append(
             f"no precision given (value_sd, or a '_sd' column): the noise was estimated from the fit's residuals "
@@ -756,7 +755,7 @@ def _fit_boundary(
         others = ", ".join(f"{n['position_um']:.1f}" for n in plan["neighbours"])
         warnings.append(f"only the largest step was dated; other steps at {others} µm were left undated (give "
                         "--boundary-um with every position to date each)")
-    result = propagate(context)
+    result = propagate(state)
     result.warnings = warnings + result.warnings
     td = result.time_days
     path_effective = None

@@ -34,8 +34,9 @@ propagates by refitting at a few temperatures.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -54,10 +55,23 @@ from zoneprofile.diffusion._optimise import (  # noqa: F401 - re-exported for co
 )
 from zoneprofile.diffusion import _window
 from zoneprofile.diffusion._state import FitState
+from zoneprofile.diffusion.options import FitOptions, Placement
 from zoneprofile.diffusion._steps import _noise_sd, _side_means, find_boundaries
 from zoneprofile.diffusion.uncertainty import propagate
 from zoneprofile.minerals.registry import REGISTRY as MINERAL_TABLE
 from zoneprofile.minerals.registry import needs_an as an_needed
+
+if TYPE_CHECKING:  # annotations only
+    from numpy.typing import ArrayLike
+
+    from zoneprofile.diffusion._budget import BudgetOptions
+    from zoneprofile.diffusion._optimise import BestFit
+    from zoneprofile.diffusion._problem import LinearModel, NonlinearModel, Problem
+    from zoneprofile.diffusion.grid import Grid
+    from zoneprofile.diffusion.laws._base import DiffusionLaw
+    from zoneprofile.diffusion.orientation import Orientation
+    from zoneprofile.diffusion.paths import LinearCooling, TablePath
+    from zoneprofile.diffusion.uncertainty import FitResult
 
 __all__ = ["fit_boundary", "find_boundaries", "ELEMENT_COLUMNS"]
 
@@ -67,6 +81,8 @@ UM2_PER_M2 = 1e12
 ELEMENT_COLUMNS = {(d.element, m.law_mineral): d.column for m in MINERAL_TABLE for d in m.elements}
 
 _MIN_SIDE_POINTS = 3
+#: keyword arguments of the fit that are data, not options (diffusion/options.py groups the rest)
+_DATA_KEYWORDS = ("distance_um", "value", "element", "mineral", "an", "an_distance_um", "value_sd")
 
 
 # --------------------------------------------------------------------------- helpers
@@ -304,8 +320,8 @@ class _Checked:
     sd_all: np.ndarray | None
     t0: float
     t_sd: float
-    law: Any
-    options: Any  # BudgetOptions
+    law: DiffusionLaw
+    options: BudgetOptions
     fo2_pa: float | None
     draws: int
     needs_an: bool
@@ -338,18 +354,18 @@ class _Located:
 class _Built:
     """Stage 3, the problem built: grid, spot, rim, law conditions, coupling to An."""
 
-    problem: Any  # _problem.Problem
-    grid: Any
+    problem: Problem
+    grid: Grid
     beam_um: float | None
     beam_shape: str
     an_beam_um: float | None
     beam_from_an: float | None
     rim_kind: str
     rim_auto: bool
-    orientation: Any
+    orientation: Orientation | None
     coupling: str | None
     an_info: dict
-    an_cells_at: Any
+    an_cells_at: Callable[[float | None], np.ndarray] | None
     partition_ab: tuple | None
     reference: dict
     nonlinear: bool
@@ -367,20 +383,20 @@ class _Start:
     fixed: bool
     rim_kind: str
     rim_choice: dict | None
-    model0: Any
-    start: Any
+    model0: LinearModel | NonlinearModel
+    start: list
     lower: np.ndarray
     upper: np.ndarray
     vary: list
     param_names: list
-    lm_start: Any
+    lm_start: np.ndarray | list
 
 
 @dataclass
 class _Dated:
     """Stage 6, dated: the FitResult from the Monte Carlo draws and what the grid and the path say of it."""
 
-    result: Any  # uncertainty.FitResult
+    result: FitResult
     h_new_um: float | None
     h_at_um: float
     grid_bias: float
@@ -391,19 +407,18 @@ class _Dated:
 class _Optimum:
     """Stage 5, the optimum: best fit, its covariance, χ², the undiffused-step test, the parameter table."""
 
-    out: Any  # _optimise.BestFit
+    out: BestFit
     best: np.ndarray
     pred: np.ndarray
     resid: np.ndarray
     chi2: float
     dof: int
     floor_delta_chi2: float
-    upper_log10_dt: Any
+    upper_log10_dt: Callable[[], float | None]
     params_report: dict
 
 
-def _check_call(distance_um, value, *, element, mineral, temperature_c, temperature_sd_c, budget, fo2_pa, law,
-                draws, value_sd, an, an_distance_um, an_beam_um, beam_um) -> _Checked:
+def _check_call(distance_um, value, *, element, mineral, value_sd, an, an_distance_um, opts: FitOptions) -> _Checked:
     """Stage 1, check inputs: element, mineral, profile, temperature, budget options, law, draws, An.
 
     Stated defaults taken here (the temperature sd) are named in
@@ -413,6 +428,9 @@ def _check_call(distance_um, value, *, element, mineral, temperature_c, temperat
     from zoneprofile.diffusion._budget import DEFAULT_TEMPERATURE_SD_C, BudgetOptions
     from zoneprofile.diffusion.laws import default_law, get_law
 
+    temperature_c, temperature_sd_c = opts.conditions.temperature_c, opts.conditions.temperature_sd_c
+    fo2_pa, budget, law, draws = opts.conditions.fo2_pa, opts.monte_carlo.budget, opts.model.law, opts.monte_carlo.draws
+    an_beam_um, beam_um = opts.spot.an_beam_um, opts.spot.beam_um
     el, mi, x_all, y_all = _check_inputs(distance_um, value, element, mineral, temperature_c)
     t0 = float(temperature_c)
     defaults_used = {}
@@ -468,8 +486,7 @@ def _check_call(distance_um, value, *, element, mineral, temperature_c, temperat
                     an_beam_um=an_beam_um, defaults_used=defaults_used, warnings=warnings)
 
 
-def _locate_boundary(chk: _Checked, *, boundary_um, boundary_window_um, segment_um, neighbours_um, call, plan,
-                     depth) -> _Located:
+def _locate_boundary(chk: _Checked, placement: Placement, *, call: dict, plan: dict | None, depth: int) -> _Located:
     """Stage 2, locate the boundary: the segment, the start position, the window free of other steps.
 
     Without ``boundary_um`` the largest step is taken (in An when An steps
@@ -482,6 +499,8 @@ def _locate_boundary(chk: _Checked, *, boundary_um, boundary_window_um, segment_
     """
     x_all, y_all, sd_all, an_x, an_vals, needs_an = chk.x_all, chk.y_all, chk.sd_all, chk.an_x, chk.an_vals, \
         chk.needs_an
+    boundary_um, boundary_window_um = placement.boundary_um, placement.boundary_window_um
+    segment_um, neighbours_um = placement.segment_um, placement.neighbours_um
     if segment_um is not None:
         keep = (x_all >= segment_um[0]) & (x_all <= segment_um[1])
     else:
@@ -563,8 +582,7 @@ def _locate_boundary(chk: _Checked, *, boundary_um, boundary_window_um, segment_
                     window=window, spacing=spacing, at_rim=at_rim)
 
 
-def _build_problem(chk: _Checked, loc: _Located, *, beam_um, beam_shape, an_distance_um, geometry, radius_um,
-                   n_cells, h_um, rim, direction, pressure_mpa, x_fe, partition, value_name, path) -> _Built:
+def _build_problem(chk: _Checked, loc: _Located, opts: FitOptions, *, an_distance_um, h_um: float | None) -> _Built:
     """Stage 3, build the problem: grid, spot (or its estimate from the An step), rim, law conditions, An coupling.
 
     Adds the warnings of the law's and the partition model's calibrated
@@ -572,6 +590,10 @@ def _build_problem(chk: _Checked, loc: _Located, *, beam_um, beam_shape, an_dist
     """
     from zoneprofile.diffusion._problem import Problem
 
+    beam_um, beam_shape = opts.spot.beam_um, opts.spot.beam_shape
+    geometry, radius_um, n_cells, rim = opts.model.geometry, opts.model.radius_um, opts.model.n_cells, opts.model.rim
+    partition, value_name, direction = opts.model.partition, opts.model.value_name, opts.section.direction
+    pressure_mpa, x_fe, path = opts.conditions.pressure_mpa, opts.conditions.x_fe, opts.conditions.path
     el, mi, law_obj, x, y = chk.el, chk.mi, chk.law, loc.x, loc.y
     an_x, an_vals, an_beam_um, t0, warnings = chk.an_x, chk.an_vals, chk.an_beam_um, chk.t0, chk.warnings
     b0, fixed, window, spacing = loc.b0, loc.fixed, loc.window, loc.spacing
@@ -803,8 +825,8 @@ def _optimise_fit(chk: _Checked, loc: _Located, st: _Start) -> _Optimum:
                     floor_delta_chi2=floor_delta_chi2, upper_log10_dt=upper_log10_dt, params_report=params_report)
 
 
-def _propagate_uncertainty(chk: _Checked, loc: _Located, built: _Built, st: _Start, opt: _Optimum, *, path,
-                           obliquity_deg, obliquity_sd_deg, dip_deg, seed, noise_refits, boundary_um) -> _Dated:
+def _propagate_uncertainty(chk: _Checked, loc: _Located, built: _Built, st: _Start, opt: _Optimum,
+                           opts: FitOptions) -> _Dated:
     """Stage 6, uncertainty: the fit's state handed to :func:`~zoneprofile.diffusion.uncertainty.propagate`.
 
     Also gives the finer cell width the grid should have (None when the
@@ -813,6 +835,7 @@ def _propagate_uncertainty(chk: _Checked, loc: _Located, built: _Built, st: _Sta
     """
     from zoneprofile.diffusion.resolution import beam_variance_um2
 
+    path, section, mc = opts.conditions.path, opts.section, opts.monte_carlo
     problem, grid, best = built.problem, built.grid, opt.best
     sig2 = beam_variance_um2(built.beam_um, built.beam_shape)
     resolution_var_um2 = sig2 + loc.spacing**2 / 12.0
@@ -825,9 +848,10 @@ def _propagate_uncertainty(chk: _Checked, loc: _Located, built: _Built, st: _Sta
         position_candidates=tuple(built.an_info.get("position_candidates") or ()),
         resolution_var_um2=resolution_var_um2,
         an_values=None if problem.x_an_cells is None or an_vals is None else an_vals,
-        temperature_c=chk.t0, temperature_sd_c=chk.t_sd, path=path, obliquity_deg=obliquity_deg,
-        obliquity_sd_deg=float(obliquity_sd_deg or 0.0), dip_deg=dip_deg, draws=chk.draws, seed=seed,
-        noise_refits=int(noise_refits), budget_options=chk.options, defaults_used=chk.defaults_used,
+        temperature_c=chk.t0, temperature_sd_c=chk.t_sd, path=path, obliquity_deg=section.obliquity_deg,
+        obliquity_sd_deg=float(section.obliquity_sd_deg or 0.0), dip_deg=section.dip_deg, draws=chk.draws,
+        seed=mc.seed, noise_refits=int(mc.noise_refits), budget_options=chk.options,
+        defaults_used=chk.defaults_used,
     )
     warnings = chk.warnings
     if loc.sd is None:
@@ -835,7 +859,7 @@ def _propagate_uncertainty(chk: _Checked, loc: _Located, built: _Built, st: _Sta
             f"no precision given (value_sd, or a '_sd' column): the noise was estimated from the fit's residuals "
             f"(sd ≈ {math.sqrt(opt.chi2 / opt.dof):.3g}); the reduced χ² is then in data units squared, not a test of fit")
     plan = loc.plan
-    if boundary_um is None and plan is not None and plan["neighbours"]:
+    if opts.placement.boundary_um is None and plan is not None and plan["neighbours"]:
         others = ", ".join(f"{n['position_um']:.1f}" for n in plan["neighbours"])
         warnings.append(f"only the largest step was dated; other steps at {others} µm were left undated (give "
                         "--boundary-um with every position to date each)")
@@ -866,8 +890,8 @@ def _propagate_uncertainty(chk: _Checked, loc: _Located, built: _Built, st: _Sta
     return _Dated(result=result, h_new_um=h_new, h_at_um=h_at, grid_bias=grid_bias, path_effective_c=path_effective)
 
 
-def _to_result(dated: _Dated, chk: _Checked, loc: _Located, built: _Built, st: _Start, opt: _Optimum, *, depth,
-               geometry, radius_um, pressure_mpa, direction, path, partition):
+def _to_result(dated: _Dated, chk: _Checked, loc: _Located, built: _Built, st: _Start, opt: _Optimum,
+               opts: FitOptions, *, depth: int):
     """Stage 7, to result: orientation, the window's verdict, the fitted quantities and the model set-up.
 
     Fills the :class:`~zoneprofile.diffusion.uncertainty.FitResult` that
@@ -877,6 +901,8 @@ def _to_result(dated: _Dated, chk: _Checked, loc: _Located, built: _Built, st: _
     from zoneprofile.diffusion.resolution import beam_sigma_um
 
     result = dated.result
+    geometry, radius_um, partition = opts.model.geometry, opts.model.radius_um, opts.model.partition
+    pressure_mpa, path, direction = opts.conditions.pressure_mpa, opts.conditions.path, opts.section.direction
     problem, grid, law_obj, best, x = built.problem, built.grid, chk.law, opt.best, loc.x
     beam_um, beam_shape, partition_ab, coupling = built.beam_um, built.beam_shape, built.partition_ab, built.coupling
     orientation = built.orientation
@@ -952,47 +978,47 @@ def _to_result(dated: _Dated, chk: _Checked, loc: _Located, built: _Built, st: _
 
 
 def _fit_boundary(
-    distance_um,
-    value,
+    distance_um: ArrayLike,
+    value: ArrayLike,
     *,
-    element,
-    mineral,
-    temperature_c,
-    temperature_sd_c=None,
-    an=None,
-    an_distance_um=None,
-    an_beam_um=None,
-    boundary_um=None,
-    boundary_window_um=None,
-    segment_um=None,
-    beam_um=None,
-    beam_shape="gaussian",
-    law=None,
-    partition="bindeman1998",
-    draws=1000,
-    seed=0,
-    obliquity_deg=None,
-    obliquity_sd_deg=0.0,
-    dip_deg=None,
-    value_sd=None,
-    fo2_pa=None,
-    pressure_mpa=None,
-    x_fe=None,
-    direction=None,
-    rim="open",
-    geometry="planar",
-    radius_um=None,
-    path=None,
-    noise_refits=40,
-    n_cells=400,
-    value_name=None,
-    neighbours_um=None,
-    budget=None,
-    _plan=None,
-    _depth=0,
-    _shape_c=None,
-    _h_um=None,
-):
+    element: str,
+    mineral: str,
+    temperature_c: float,
+    temperature_sd_c: float | None = None,
+    an: ArrayLike | None = None,
+    an_distance_um: ArrayLike | None = None,
+    an_beam_um: float | None = None,
+    boundary_um: float | None = None,
+    boundary_window_um: float | None = None,
+    segment_um: tuple[float, float] | None = None,
+    beam_um: float | None = None,
+    beam_shape: str = "gaussian",
+    law: str | DiffusionLaw | None = None,
+    partition: str = "bindeman1998",
+    draws: int = 1000,
+    seed: int = 0,
+    obliquity_deg: float | None = None,
+    obliquity_sd_deg: float = 0.0,
+    dip_deg: float | None = None,
+    value_sd: float | ArrayLike | None = None,
+    fo2_pa: float | None = None,
+    pressure_mpa: float | None = None,
+    x_fe: float | None = None,
+    direction: str | Sequence[float] | None = None,
+    rim: str = "open",
+    geometry: str = "planar",
+    radius_um: float | None = None,
+    path: LinearCooling | TablePath | None = None,
+    noise_refits: int = 40,
+    n_cells: int = 400,
+    value_name: str | None = None,
+    neighbours_um: Sequence[float] | None = None,
+    budget: BudgetOptions | Mapping[str, Any] | None = None,
+    _plan: dict | None = None,
+    _depth: int = 0,
+    _shape_c: float | None = None,
+    _h_um: float | None = None,
+) -> FitResult:
     """Fit a diffusion model to one boundary of a profile and date it.
 
     Parameters
@@ -1057,6 +1083,14 @@ def _fit_boundary(
         obliquity default, fO2 buffer, partition sd, shared seeds); see
         :mod:`zoneprofile.diffusion._budget`. None: the stated defaults.
 
+    The options other than the data (``element``, ``mineral``, ``an``,
+    ``an_distance_um``, ``value_sd``) are grouped once, by
+    :meth:`~zoneprofile.diffusion.options.FitOptions.from_keywords`, into
+    conditions, spot, section, placement, model and Monte Carlo
+    (:mod:`zoneprofile.diffusion.options`); the stages of the fit read the
+    groups: check inputs, locate boundary, build problem, bounds and start,
+    optimise, uncertainty, to result.
+
     Returns
     -------
     FitResult
@@ -1067,26 +1101,18 @@ def _fit_boundary(
         from zoneprofile.diffusion._pathfit import fit_on_path
 
         return fit_on_path(_fit_boundary, call, path)
-    chk = _check_call(distance_um, value, element=element, mineral=mineral, temperature_c=temperature_c,
-                      temperature_sd_c=temperature_sd_c, budget=budget, fo2_pa=fo2_pa, law=law, draws=draws,
-                      value_sd=value_sd, an=an, an_distance_um=an_distance_um, an_beam_um=an_beam_um,
-                      beam_um=beam_um)
-    loc = _locate_boundary(chk, boundary_um=boundary_um, boundary_window_um=boundary_window_um,
-                           segment_um=segment_um, neighbours_um=neighbours_um, call=call, plan=_plan, depth=_depth)
-    built = _build_problem(chk, loc, beam_um=beam_um, beam_shape=beam_shape, an_distance_um=an_distance_um,
-                           geometry=geometry, radius_um=radius_um, n_cells=n_cells, h_um=_h_um, rim=rim,
-                           direction=direction, pressure_mpa=pressure_mpa, x_fe=x_fe, partition=partition,
-                           value_name=value_name, path=path)
+    opts = FitOptions.from_keywords(**{k: v for k, v in call.items() if k not in _DATA_KEYWORDS})
+    chk = _check_call(distance_um, value, element=element, mineral=mineral, value_sd=value_sd, an=an,
+                      an_distance_um=an_distance_um, opts=opts)
+    loc = _locate_boundary(chk, opts.placement, call=call, plan=_plan, depth=_depth)
+    built = _build_problem(chk, loc, opts, an_distance_um=an_distance_um, h_um=_h_um)
     st = _bounds_and_start(chk, loc, built)
     opt = _optimise_fit(chk, loc, st)
-    dated = _propagate_uncertainty(chk, loc, built, st, opt, path=path, obliquity_deg=obliquity_deg,
-                                   obliquity_sd_deg=obliquity_sd_deg, dip_deg=dip_deg, seed=seed,
-                                   noise_refits=noise_refits, boundary_um=boundary_um)
+    dated = _propagate_uncertainty(chk, loc, built, st, opt, opts)
     if dated.h_new_um is not None and _h_um is None and _depth == 0:
         # the same window and neighbours (they do not depend on the grid), finer cells
         return _fit_boundary(**call, _plan=loc.plan, _shape_c=_shape_c, _h_um=dated.h_new_um)
-    return _to_result(dated, chk, loc, built, st, opt, depth=_depth, geometry=geometry, radius_um=radius_um,
-                      pressure_mpa=pressure_mpa, direction=direction, path=path, partition=partition)
+    return _to_result(dated, chk, loc, built, st, opt, opts, depth=_depth)
 
 
 fit_boundary = _single_threaded(_fit_boundary)

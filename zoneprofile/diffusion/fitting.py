@@ -309,7 +309,9 @@ def _single_threaded(func):
 
 
 # --------------------------------------------------------------------------- the stages of one fit
-@dataclass
+# each stage returns a frozen record that the later stages read (their lists, dicts and the Problem
+# are filled in place where the original procedure did: warnings, an_info, the rim and the An tie)
+@dataclass(frozen=True)
 class _Checked:
     """Stage 1, the inputs checked: element, mineral, profile, law, conditions, An."""
 
@@ -332,7 +334,7 @@ class _Checked:
     warnings: list
 
 
-@dataclass
+@dataclass(frozen=True)
 class _Located:
     """Stage 2, the boundary located: the points fitted, the start position and its window."""
 
@@ -350,7 +352,7 @@ class _Located:
     at_rim: bool
 
 
-@dataclass
+@dataclass(frozen=True)
 class _Built:
     """Stage 3, the problem built: grid, spot, rim, law conditions, coupling to An."""
 
@@ -372,7 +374,7 @@ class _Built:
     d_ref0: float
 
 
-@dataclass
+@dataclass(frozen=True)
 class _Start:
     """Stage 4, bounds and start: the parameter ranges, the start and the model at the nominal temperature."""
 
@@ -392,18 +394,7 @@ class _Start:
     lm_start: np.ndarray | list
 
 
-@dataclass
-class _Dated:
-    """Stage 6, dated: the FitResult from the Monte Carlo draws and what the grid and the path say of it."""
-
-    result: FitResult
-    h_new_um: float | None
-    h_at_um: float
-    grid_bias: float
-    path_effective_c: float | None
-
-
-@dataclass
+@dataclass(frozen=True)
 class _Optimum:
     """Stage 5, the optimum: best fit, its covariance, χ², the undiffused-step test, the parameter table."""
 
@@ -416,6 +407,17 @@ class _Optimum:
     floor_delta_chi2: float
     upper_log10_dt: Callable[[], float | None]
     params_report: dict
+
+
+@dataclass(frozen=True)
+class _Dated:
+    """Stage 6, dated: the FitResult from the Monte Carlo draws and what the grid and the path say of it."""
+
+    result: FitResult
+    h_new_um: float | None
+    h_at_um: float
+    grid_bias: float
+    path_effective_c: float | None
 
 
 def _check_call(distance_um, value, *, element, mineral, value_sd, an, an_distance_um, opts: FitOptions) -> _Checked:

@@ -7,7 +7,7 @@ percentile of 10^41 days marked resolved) or fail every crystal later
 
 import pytest
 
-from test_campaign_schema import GOOD, error_of, write
+from _campaign_files import GOOD, error_of, write
 from zoneprofile._limits import CLI_OPTIONS, LIMITS
 from zoneprofile.campaign import load_campaign
 from zoneprofile.cli import build_parser

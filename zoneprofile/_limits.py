@@ -16,7 +16,8 @@ from dataclasses import dataclass
 
 from zoneprofile._validation import InputError
 
-__all__ = ["Limit", "LIMITS", "CLI_OPTIONS", "check_limit", "apply_limits"]
+__all__ = ["Limit", "LIMITS", "CLI_OPTIONS", "CHOICES", "FIGURE_WIDTH_IN", "FIGURE_PNG_DPI", "check_limit",
+           "check_choice", "apply_limits"]
 
 
 @dataclass(frozen=True)
@@ -61,6 +62,20 @@ LIMITS: dict[str, Limit] = {
     "distance_um": Limit(float, -1e5, 1e5, "µm", why="distance along a crystal traverse"),
 }
 
+#: Print width of a figure, inches: one journal column (~90 mm) or the full page width of two columns
+#: (~180 mm); common practice of journals, which ask for 80-90 mm and 170-180 mm (docs/report.md).
+FIGURE_WIDTH_IN: dict[str, float] = {"single": 3.54, "double": 7.09}
+#: Resolution of PNG figures at their print width (300 dpi: common practice of journals for line art
+#: with shading; docs/report.md).
+FIGURE_PNG_DPI = 300
+
+#: Options that take one word from a fixed list: key -> (choices, default, why). The command line
+#: (argparse ``choices``) and the campaign file read these.
+CHOICES: dict[str, tuple[tuple[str, ...], str, str]] = {
+    "figure_width": (tuple(FIGURE_WIDTH_IN), "double",
+                     "print width of figures: single (one column, 90 mm) or double (two columns, 180 mm)"),
+}
+
 #: Options of each command checked against :data:`LIMITS` (argparse ``dest``).
 CLI_OPTIONS: dict[str, tuple[str, ...]] = {
     "fit": ("seed", "draws", "temperature_c", "temperature_sd_c", "beam_um", "an_beam_um", "radius_um"),
@@ -94,6 +109,14 @@ def check_limit(key: str, value, name: str | None = None):
     message = _message(key, value, name or key)
     if message:
         raise InputError(message)
+    return value
+
+
+def check_choice(key: str, value, name: str | None = None) -> str:
+    """Return ``value`` if it is one of the choices of ``key``; else raise :class:`InputError`."""
+    choices = CHOICES[key][0]
+    if not isinstance(value, str) or value not in choices:
+        raise InputError(f"{name or key} must be one of {', '.join(choices)}, got {value!r}")
     return value
 
 

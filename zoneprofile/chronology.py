@@ -23,6 +23,7 @@ from collections import defaultdict
 
 import numpy as np
 
+from zoneprofile._records import Interval, PopulationSummary  # the layouts returned, declared once
 from zoneprofile._validation import InputError
 from zoneprofile.event_model import population_events
 
@@ -68,7 +69,7 @@ def _position(boundary, index: int) -> float:
 
 
 # --------------------------------------------------------------------------- per crystal
-def crystal_intervals(boundaries, *, per_element: bool = True) -> list[dict]:
+def crystal_intervals(boundaries, *, per_element: bool = True) -> list[Interval]:
     """Time between successive dated recharge boundaries of one crystal.
 
     Parameters
@@ -420,7 +421,7 @@ def population_summary(
     bandwidth: float | None = None,
     grid_points: int = 256,
     seed: int = 0,
-) -> dict:
+) -> PopulationSummary:
     """Population statistics of boundary times, per sample and for the campaign.
 
     Parameters
@@ -545,7 +546,7 @@ def _event_intervals(records, rows, element):
     """Crystal intervals grouped by the pair of events their two boundaries belong to."""
     event_at = {}
     for r in rows:
-        if r.get("event") and r.get("position_um") is not None:
+        if r["event"] and r["position_um"] is not None:  # rows are tagged by _events first
             event_at[(r["sample"], r["crystal"], float(r["position_um"]))] = r["event"]
     groups = defaultdict(list)
     for rec in records:
@@ -588,9 +589,9 @@ def _events(rows, unresolved, element, model, analysed_by_sample, n_all):
     for m in model["members"]:
         where[(m["sample"], m["crystal"], m["position_um"])] = m
     for r in list(rows) + list(unresolved):
-        x = r.get("position_um")
+        x = r["position_um"]
         m = where.get((r["sample"], r["crystal"], float(x))) if isinstance(x, (int, float)) else None
-        r["event"] = f"{prefix}-{m['event']}" if m and m.get("event") else None
+        r["event"] = f"{prefix}-{m['event']}" if m and m["event"] else None
         if m:
             r["event_probabilities"] = {f"{prefix}-{k}": p for k, p in m["probabilities"].items()}
             if m["flags"]:
@@ -598,7 +599,7 @@ def _events(rows, unresolved, element, model, analysed_by_sample, n_all):
     events = []
     for e in model["events"]:
         eid = f"{prefix}-{e['id']}"
-        members = [r for r in rows if r.get("event") == eid]
+        members = [r for r in rows if r["event"] == eid]
         crystals = sorted({(c["sample"], c["crystal"]) for c in e["crystals"]})
         per_sample = {}
         for s, names in sorted(analysed_by_sample.items()):

@@ -692,7 +692,7 @@ def population_events(records, *, element=None, k_max: int = K_MAX, spread_floor
         probs = fit["probabilities"][j] if k else []
         members.append({
             "sample": o["sample"], "crystal": o["crystal"], "boundary": o["boundary"],
-            "position_um": o.get("position_um"), "element": o.get("element"), "source": o["source"],
+            "position_um": o["position_um"], "element": o["element"], "source": o["source"],
             "statement": o["statement"],
             "time_days": _obs_summary(o),
             "probabilities": {ids[m]: float(p) for m, p in enumerate(probs)},

@@ -33,7 +33,7 @@ HERE = Path(__file__).resolve().parent
 
 
 def _case():
-    sys.path.insert(0, str(HERE.parent))
+    sys.path.insert(0, str(HERE.parent / "diffusion"))
     from test_crystal_model import _three_event_case
 
     return _three_event_case(11)

@@ -16,7 +16,7 @@ KEY = "ab" + "0" * 62
 def _record():
     return {"sample": "S1", "crystal": "c1", "mineral": "plagioclase", "error": None, "inputs": [],
             "parameters": {"seed": 1}, "profile": None, "zones": None, "boundaries": [], "warnings": [],
-            "recharge_intervals_days": [], "timing_s": {}}
+            "recharge_intervals_days": [], "timing_s": {}, "trace_profile": None, "map": None, "model": None}
 
 
 def test_valid_record_round_trips(tmp_path):
@@ -48,12 +48,16 @@ def _summary(median):
 
 def _crystal_record():
     """A record dated by the whole-crystal model (keys: docs/whole-crystal-model.md)."""
-    cm = {"boundaries": [{"id": "B1", "position_um": 150.0, "age_days": _summary(180.0),
-                          "by_element": {"Mg": _summary(180.0)}},
-                         {"id": "B2", "position_um": 30.0, "age_days": _summary(15.0),
-                          "by_element": {"Mg": _summary(15.0)}}],
+    one = {"status": "one element", "reasons": []}
+    cm = {"boundaries": [{"id": "B1", "position_um": 150.0, "fitted_position_um": 150.0, "age_days": _summary(180.0),
+                          "by_element": {"Mg": _summary(180.0)}, "concordance": one},
+                         {"id": "B2", "position_um": 30.0, "fitted_position_um": 30.0, "age_days": _summary(15.0),
+                          "by_element": {"Mg": _summary(15.0)}, "concordance": one}],
           "gaps": [{"older": "B1", "younger": "B2", "days": _summary(165.0)}], "elements": ["Mg"],
-          "warnings": [], "method": "whole-crystal"}
+          "warnings": [], "method": "whole-crystal", "temperature_c": 1000.0, "temperature_sd_c": 20.0,
+          "n_draws": 50, "rim": "open", "obliquity": None, "position_window_um": 3.0, "cell_um": 0.85,
+          "grid_cells": 202, "chi2": 1.0, "n_points": 80, "best_ages_days_at_nominal_temperature": [180.0, 15.0],
+          "laws": {"Mg": "mg-plag"}, "uncertainty": "Laplace approximation", "timing_s": None}
     return {**_record(), "crystal_model": cm,
             "model": {"requested": "crystal", "used": "crystal", "note": "2 boundaries dated together"}}
 

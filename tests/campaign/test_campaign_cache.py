@@ -27,16 +27,27 @@ def counting_process(task):
     draws = np.exp(rng.normal(np.log(50.0), 0.3, task["parameters"]["draws"]))
     q = np.percentile(draws, [2.5, 16, 50, 84, 97.5])
     boundary = {
-        "position_um": 20.0, "kind": "reverse", "element": "Mg", "law": "x", "resolved": True, "warnings": [],
+        "position_um": 20.0, "fitted_position_um": 20.0, "kind": "reverse", "recharge": None, "element": "Mg",
+        "obliquity_deg": None, "mineral": task["mineral"], "law": "x", "law_citation": None, "law_status": None,
+        "temperature_c": 1000.0, "temperature_sd_c": 20.0, "resolved": True, "warnings": [],
         "time_days": {"best": float(q[2]), "median": float(q[2]), "p2_5": float(q[0]), "p16": float(q[1]),
-                      "p84": float(q[3]), "p97_5": float(q[4])},
-        "log10_dt_m2": -10.0, "time_draws_days": draws.tolist(), "curve": {},
+                      "p84": float(q[3]), "p97_5": float(q[4]), "upper_bound": None, "lower_bound": None,
+                      "statement": "date"},
+        "log10_dt_m2": {"best": -10.0}, "d_ref_m2_s": 1e-18, "parameters": {}, "chi2": 1.0, "reduced_chi2": 1.0,
+        "n_points": 10, "boundary_fixed": False, "uncertainty_budget_log10_time_sd": {},
+        "uncertainty_budget_settings": {}, "obliquity": None, "temperature_nodes": None, "an_profile": {},
+        "draws": len(draws), "noise_method": "none", "model_setup": {}, "points": {},
+        "time_draws_days": draws.tolist(), "curve": {"distance_um": [], "data": []},
     }
-    return {
+    zones = {"column": "An", "n_points": 1, "noise_sd": 1.0, "noise_source": "given", "steps": [],
+             "resorption_surfaces": [], "oscillatory_bands": [], "zones": [], "mantles": [], "temperature_c": 1000.0,
+             "warnings": [], "settings": {}, "conventions": {}}
+    return {  # the layout of zoneprofile._records.CrystalRecord: the cache gives back only such records
         "sample": task["sample"], "crystal": task["crystal"], "mineral": task["mineral"], "error": None,
         "inputs": [{"path": i["rel"], "sha256": i["sha256"], "role": i["role"]} for i in task["inputs"]],
-        "parameters": task["parameters"], "profile": None, "zones": {"steps": []}, "boundaries": [boundary],
-        "recharge_intervals_days": [], "map": None, "warnings": [],
+        "parameters": task["parameters"], "profile": None, "trace_profile": None, "zones": zones,
+        "boundaries": [boundary], "recharge_intervals_days": [], "map": None, "model": None, "warnings": [],
+        "timing_s": {},
     }
 
 

@@ -6,56 +6,10 @@ import textwrap
 
 import pytest
 
-from zoneprofile._validation import InputError
 from zoneprofile.campaign import crystal_seed, load_campaign
 from zoneprofile.campaign._toml_lines import KeyLines
 
-GOOD = """\
-title = "test campaign"
-seed = 3
-draws = 200
-
-[defaults]
-mineral = "plagioclase"
-elements = ["Mg"]
-temperature_c = 1000
-temperature_sd_c = 10
-beam_um = 3
-
-[samples.S1]
-temperature_c = 990
-
-[samples."S 2"]
-comment = "second sample"
-
-[[crystals]]
-sample = "S1"
-id = "c1"
-traverse = "data/c1.csv"
-
-[[crystals]]
-sample = "S 2"
-id = "c2"
-traverse = "data/c2.csv"
-temperature_c = 1010
-elements = ["Mg", "Sr"]
-laws = {}
-"""
-
-
-def write(folder, text, name="camp.toml"):
-    (folder / "data").mkdir(exist_ok=True)
-    for f in ("c1.csv", "c2.csv"):
-        (folder / "data" / f).write_text("x\n1\n")
-    p = folder / name
-    p.write_text(textwrap.dedent(text))
-    return p
-
-
-def error_of(path, **kw) -> InputError:
-    with pytest.raises(InputError) as exc:
-        load_campaign(path, **kw)
-    return exc.value
+from _campaign_files import GOOD, error_of, write  # noqa: F401 - shared with other tests
 
 
 def line_of(text, fragment):

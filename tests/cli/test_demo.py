@@ -16,7 +16,7 @@ import tomllib
 
 import pytest
 
-from conftest import run_cli
+from conftest import run_cli, run_cli_process
 
 #: A dated boundary is the planted one when within this distance (µm): about
 #: two analysis steps, the zoning stage's position precision on the demo data.
@@ -49,7 +49,7 @@ def match_truth(results, truth):
 @pytest.fixture(scope="session")
 def demo_dir(tmp_path_factory):
     out = tmp_path_factory.mktemp("demo") / "zoneprofile-demo"
-    code, _, err = run_cli("demo", "--out", out)
+    code, _, err = run_cli_process("demo", "--out", out)  # the README's first command, as a user runs it
     assert code == 0, err
     return out
 

@@ -63,11 +63,20 @@ def test_two_boundaries_two_fits_and_an_from_second_table(tmp_path):
     xa = np.arange(0.0, 101.0, 1.0)  # its own zero, 5 µm coreward of the profile's
     pd.DataFrame({"distance_um": xa, "An": np.full(xa.size, 62.0)}).to_csv(an_tab, index=False)
     out = tmp_path / "FIT.json"
-    code, _, err = run_cli("fit", prof, "--element", "Sr", "--mineral", "plagioclase", "--temperature-c", "1000",
-                           "--beam-um", "8", "--beam-shape", "square", "--an-from", an_tab,
-                           "--offset-um", "5", "--boundary-um", "30", "50", "--draws", "100", "-o", out)
+    code, printed, err = run_cli("fit", prof, "--element", "Sr", "--mineral", "plagioclase", "--temperature-c",
+                                 "1000", "--beam-um", "8", "--beam-shape", "square", "--an-from", an_tab,
+                                 "--offset-um", "5", "--boundary-um", "30", "50", "--draws", "100", "-o", out)
     assert code == 0, err
     doc = json.loads(out.read_text())
+    # run-level notes (stated defaults of the budget, the same for both fits) are said once: printed once and
+    # kept in FIT.json's top-level warnings, not repeated in each fit's
+    defaults = [w for w in doc["warnings"] if w.startswith("stated default used for")]
+    assert defaults, doc["warnings"]
+    for w in defaults:
+        assert printed.count(w) == 1
+        assert not any(w in f["warnings"] for f in doc["fits"])
+    lines = [ln.strip() for ln in printed.splitlines() if ln.strip().startswith("warning:")]
+    assert len(lines) == len(set(lines))
     assert [round(f["position_um"]) for f in doc["fits"]] == [30, 50]
     assert doc["input"]["an_from"]["offset_um"] == 5
     assert doc["fits"][1]["model_setup"]["beam_shape"] == "square"
@@ -127,11 +136,13 @@ def test_constant_an_option(tmp_path):
     path = tmp_path / "p.csv"
     t.to_csv(path, index=False)
     out = tmp_path / "FIT.json"
-    code, _, err = run_cli("fit", path, *SR, "--an", "60", "--beam-um", "3", "--draws", "50", "-o", out)
+    code, printed, err = run_cli("fit", path, *SR, "--an", "60", "--beam-um", "3", "--draws", "50", "-o", out)
     assert code == 0, err
     fit = json.loads(out.read_text())["fits"][0]
     assert fit["model_setup"]["reference_composition"]["x_an"] == pytest.approx(0.6)
     assert fit["resolved"] is False  # a perfectly sharp step: only an upper bound
+    # the budget's spreads of a bound are not read as the bound's uncertainty
+    assert "not a date: these spreads describe the draws, not the bound" in printed
 
 
 def test_flat_profile(tmp_path):

@@ -87,3 +87,55 @@ def test_censored_mark_in_distance_is_still_refused(probe_table, tmp_path, capsy
     assert code == 2
     assert "distance_um" in capsys.readouterr().err
     assert not out.exists()
+
+
+def _with_precision(path):
+    """The table with an MgO_sd column: 2 % of each value, the noise the profile was made with."""
+    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    frame["MgO_sd"] = [f"{0.02 * float(v):.6f}" if v else "" for v in frame["MgO"]]
+    return frame
+
+
+def test_a_censored_value_beside_a_mark_in_its_precision_column_is_left_out(probe_table, tmp_path, capsys):
+    """Probe tables mark a below-detection analysis in the value and in its precision column; the row is
+    left out, so its precision cell is not read (it stopped the fit: "not a number (found 'bdl')")."""
+    path, d = probe_table
+    frame = _with_precision(path)
+    frame.loc[12, "MgO"], frame.loc[12, "MgO_sd"] = "<0.01", "bdl"
+    frame.loc[7, "MgO_sd"] = ""  # the blank value's precision is blank too
+    frame.to_csv(path, index=False)
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--beam-um", "3", "--boundary-um", "40", "--draws", "200", "-o", str(out)])
+    assert code == 0, capsys.readouterr().err
+    fit = json.loads(out.read_text())["fits"][0]
+    assert fit["n_points"] == len(d["distance_um"]) - 2
+    assert "1 censored analyses left out" in " ".join(fit["warnings"])
+    assert not any("is blank for" in w for w in fit["warnings"])  # every kept analysis has its precision
+
+
+def test_a_precision_column_with_gaps_is_not_used_and_the_fit_says_so(probe_table, tmp_path, capsys):
+    path, d = probe_table
+    frame = _with_precision(path)
+    frame.loc[20, "MgO_sd"] = ""  # a measured analysis without its precision
+    frame.to_csv(path, index=False)
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--beam-um", "3", "--boundary-um", "40", "--draws", "200", "-o", str(out)])
+    assert code == 0, capsys.readouterr().err
+    warnings = " ".join(json.loads(out.read_text())["fits"][0]["warnings"])
+    assert "Mg_ppm_sd is blank for 1 of the" in warnings or "MgO_sd is blank for 1 of the" in warnings
+
+
+def test_a_mark_in_the_precision_of_a_measured_analysis_is_refused_with_its_cell(probe_table, tmp_path, capsys):
+    path, _ = probe_table
+    frame = _with_precision(path)
+    frame.loc[20, "MgO_sd"] = "bdl"  # the value was measured: a precision cannot be below detection
+    frame.to_csv(path, index=False)
+    out = tmp_path / "fit.json"
+    code = main(["fit", str(path), "--element", "Mg", "--mineral", "plagioclase", "--temperature-c", "1000",
+                 "--beam-um", "3", "--boundary-um", "40", "--draws", "200", "-o", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert "row 22" in err and "MgO_sd" in err and "bdl" in err
+    assert not out.exists()

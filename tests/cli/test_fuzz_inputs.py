@@ -142,7 +142,7 @@ SETTINGS = ["seed", "draws", "temperature_c", "temperature_sd_c", "beam_um", "mi
 
 
 def _check_campaign(tmp_path, key, value):
-    from test_campaign_schema import GOOD, write
+    from _campaign_files import GOOD, write
 
     from zoneprofile._validation import InputError
     from zoneprofile.campaign import load_campaign

@@ -13,7 +13,8 @@ import socket
 import struct
 import subprocess
 import time
-from urllib.parse import urlparse
+from pathlib import Path
+from urllib.parse import unquote, urlparse
 
 import numpy as np
 import pytest
@@ -147,6 +148,28 @@ _PAGE_STATE = (
 )
 
 
+# the report at a 1400 px window: the paper figures decoded, the workbook link, and tables that fit
+_LAYOUT = (
+    "JSON.stringify({"
+    "figures: ['Event ladders of all crystals', 'Dated profiles, small multiples'].map(alt => "
+    "Array.from(document.images).filter(i => i.alt === alt).map(i => i.complete ? i.naturalWidth : 0)), "
+    "svgs: document.querySelectorAll('svg').length, "
+    "workbook: Array.from(document.querySelectorAll('a')).filter(a => a.getAttribute('href') && "
+    "a.getAttribute('href').endsWith('supplement.xlsx')).map(a => a.href), "
+    "viewport: window.innerWidth, page: document.documentElement.scrollWidth, "
+    "tables: document.querySelectorAll('table').length, "
+    "wide: Array.from(document.querySelectorAll('table')).filter(t => "
+    "t.scrollWidth > t.parentElement.clientWidth).map(t => [t.scrollWidth, t.parentElement.clientWidth, "
+    "(t.tHead ? t.tHead.innerText : '').slice(0, 80)])})"
+)
+
+
+def _layout(cdp):
+    """The layout checks of :data:`_LAYOUT` on the page loaded last."""
+    result = cdp.call("Runtime.evaluate", {"expression": _LAYOUT, "returnByValue": True})
+    return json.loads(result["result"]["value"])
+
+
 def _inspect(cdp, url):
     """Load ``url``, wait for the load event, return (page state, events seen meanwhile)."""
     start = len(cdp.events)
@@ -178,8 +201,13 @@ def _errors(events):
 def report_path(tmp_path):
     out = tmp_path / "out"
     out.mkdir()
+    # a long unbroken sample name and long input paths: table cells must wrap them, not widen the page
+    long_name = "EF-3_lower_flow_unit_scoria_clast_collected_2026"
     recs = sample_records(seed=5, crystals_per_sample=1, n_draws=200,
-                          samples=("North vent", "<i>South</i> & flank"))
+                          samples=("North vent", "<i>South</i> & flank", long_name))
+    for r in recs:
+        for i in r["inputs"]:
+            i["path"] = f"/home/someone/projects/campaigns/2026/microprobe/session_03/{r['sample']}/{i['path']}"
     pop = population_summary(recs, n_bootstrap=30)
     write_outputs(recs, pop, sample_provenance(recs), out, formats=("png",))
     return out / "report.html"
@@ -195,7 +223,7 @@ def test_report_renders_in_headless_chromium(report_path, tmp_path):
         [exe, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
          "--disable-background-networking", "--disable-component-update", "--disable-sync",
          f"--user-data-dir={profile}", "--remote-debugging-port=0", "--remote-debugging-address=127.0.0.1",
-         "--window-size=1280,2000", "about:blank"],
+         "--window-size=1400,2000", "about:blank"],
         stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
     )
     try:
@@ -210,13 +238,23 @@ def test_report_renders_in_headless_chromium(report_path, tmp_path):
         try:
             for domain in ("Page", "Runtime", "Log", "Network"):
                 cdp.call(f"{domain}.enable")
+            cdp.call("Emulation.setDeviceMetricsOverride",
+                     {"width": 1400, "height": 2000, "deviceScaleFactor": 1, "mobile": False})
             page, events = _inspect(cdp, report_path.as_uri())
+            layout = _layout(cdp)
             shot = cdp.call("Page.captureScreenshot", {"format": "png", "captureBeyondViewport": False})
             # negative control: the same checks catch a broken picture and a missing file
             broken = tmp_path / "broken.html"
             broken.write_text('<!DOCTYPE html><html><body><img src="data:image/png;base64,iVBORw0KGgoAAAA">'
                               '<img src="missing.png"></body></html>')
             bad_page, bad_events = _inspect(cdp, broken.as_uri())
+            # negative control of the width check: a table wider than its container is caught
+            wide = tmp_path / "wide.html"
+            wide.write_text('<!DOCTYPE html><html><body><main style="max-width:1100px"><table><tr>'
+                            + "<td>a_rather_long_unbreakable_cell_value_here</td>" * 40 + "</tr></table></main>"
+                            "</body></html>")
+            _inspect(cdp, wide.as_uri())
+            bad_layout = _layout(cdp)
         finally:
             cdp.ws.close()
     finally:
@@ -229,6 +267,21 @@ def test_report_renders_in_headless_chromium(report_path, tmp_path):
 
     assert bad_page["n"] == 2 and bad_page["drawn"] == 0
     assert _errors(bad_events)
+
+    assert len(bad_layout["wide"]) == 1 and bad_layout["page"] > 1400
+
+    # at a 1400 px window: the population's paper figures decoded (naturalWidth > 0) ...
+    assert layout["viewport"] == 1400, layout
+    assert all(len(widths) == 1 and widths[0] > 0 for widths in layout["figures"]), layout["figures"]
+    # ... the workbook linked, and the link resolves to the file written beside the report
+    assert len(layout["workbook"]) >= 1
+    for href in layout["workbook"]:
+        target = Path(unquote(urlparse(href).path))
+        assert href.startswith("file:") and target == report_path.parent / "supplement.xlsx" and target.is_file()
+    # ... and no table wider than its container, nor the page wider than the window
+    assert layout["tables"] > 5
+    assert layout["wide"] == [], layout["wide"]
+    assert layout["page"] <= 1400, layout["page"]
 
     # figures drawn: every <img> decoded with a non-zero natural size
     assert page["n"] >= 4, page

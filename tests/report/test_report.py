@@ -39,7 +39,8 @@ def test_files_written(built):
     n_ok = sum(1 for r in recs if not r["error"])
     for ext in ("png", "svg"):
         # one figure per analysed crystal + chronology + events for the one element
-        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2
+        # + the population's ladders and one page of dated profiles
+        assert len(list((out / "figures").glob(f"*.{ext}"))) == n_ok + 2 + 2
     assert all((out / f).exists() for f in result["files"])
     assert not list((out / "figures").glob("*.pdf"))  # PDF only on request
 
@@ -201,10 +202,11 @@ def test_sparse_records_render(tmp_path):
     pop = population_summary(recs, n_bootstrap=10)
     res = write_outputs(recs, pop, None, tmp_path, formats=("pdf",))
     pdfs = sorted((tmp_path / "figures").glob("*.pdf"))
-    assert len(pdfs) == 3 and all(p.read_bytes()[:5] == b"%PDF-" for p in pdfs)  # PDF header (ISO 32000)
+    # crystal, chronology, events + the population's ladders and dated profiles
+    assert len(pdfs) == 5 and all(p.read_bytes()[:5] == b"%PDF-" for p in pdfs)  # PDF header (ISO 32000)
     page = res["report"].read_text()
     assert "citation not recorded" in page
-    assert page.count("<img") == 3
+    assert page.count("<img") == 5
 
 
 def test_only_upper_bounds_and_nothing_dated(tmp_path):
@@ -217,7 +219,8 @@ def test_only_upper_bounds_and_nothing_dated(tmp_path):
     (tmp_path / "a").mkdir()
     res = write_outputs(recs, pop, {}, tmp_path / "a", formats=("png",))
     page = res["report"].read_text()
-    assert page.count("<img") == 3 and "upper bound" in page
+    # crystal, events + the ladders (two bounds drawn as arrows) and the dated profiles
+    assert page.count("<img") == 5 and "upper bound" in page
     # a crystal without any boundary and a campaign where nothing is dated
     recs = [{"sample": "S", "crystal": "c1", "error": None, "boundaries": []}]
     (tmp_path / "b").mkdir()
@@ -370,7 +373,7 @@ def test_crystal_figure_shows_every_part_with_units(mapped_record):
     root, texts = _svg_texts(drawn["svg"])
     joined = "\n".join(texts)
     for label in ("distance from rim (µm)", "An (mol%)", "Mg (ppm)", "x (µm)", "y (µm)", "Profile and zoning (An)",
-                  "95% model band", "initial step", "data", "best fit", "traverse (rim → core)", "Map"):
+                  "95% model band", "initial profile (model)", "data", "best fit", "traverse (rim → core)", "Map"):
         assert label in texts, label
     assert joined.count("Mg (ppm)") >= 2 and joined.count(" at ") >= 2  # one panel per fit
     ns = "{http://www.w3.org/2000/svg}"
@@ -378,9 +381,11 @@ def test_crystal_figure_shows_every_part_with_units(mapped_record):
     bands = [p for p in root.iter(f"{ns}path") if p.get("fill-opacity") == "0.35"]
     assert len(bands) >= 2  # a 95% band per fit (plus its legend swatch is a rect)
     zones = [r for r in root.iter(f"{ns}rect") if r.get("fill") in ("#E8F1F8", "#FBF0DC", "#E3F4EE", "#F6E6EF")]
-    assert len(zones) == len(mapped_record["zones"]["zones"])
+    assert len(zones) == len(mapped_record["zones"]["zones"]) + 1  # and the legend's swatch
     png = Image.open(__import__("io").BytesIO(drawn["png"]))
-    assert png.size == (int(root.get("width")[:-2]), int(root.get("height")[:-2]))
+    # the PNG is the SVG's drawing at 300 dpi: its viewBox is in pixels at 110 per inch (report/style.py)
+    vw, vh = (float(v) for v in root.get("viewBox").split()[2:])
+    assert png.size == (round(vw * 300 / 110), round(vh * 300 / 110))
     rgb = np.asarray(png.convert("RGB")).reshape(-1, 3).astype(int)
     for colour in ((213, 94, 0), (0, 114, 178)):  # Okabe & Ito vermilion (fits) and blue (profile)
         assert (abs(rgb - colour).max(axis=1) <= 10).sum() > 50
@@ -507,7 +512,7 @@ def test_chronology_figure_shows_every_part_with_units(pop_figures):
     ecdf, kde = block["campaign"]["ecdf"], block["campaign"]["kde"]
     expected = ["Recharge chronology: Mg", "Empirical CDF of boundary times", "Kernel density of log10 time",
                 "fraction of dated boundaries", "density (per log10 day)", "spread from time draws (95%)",
-                "DKW band (95%)", f"all samples (n = {ecdf['n']})", "upper bound (not in ECDF)",
+                "DKW band limits (95%)", f"all samples (n = {ecdf['n']})", "upper bound (not in ECDF)",
                 "bootstrap over crystals (95%)", f"kernel density (h = {kde['bandwidth_log10']:.2f} log10 d)",
                 "boundary medians"]
     expected += [f"{name} (n = {s['ecdf']['n']})" for name, s in block["samples"].items()]
@@ -518,7 +523,9 @@ def test_chronology_figure_shows_every_part_with_units(pop_figures):
     assert "10" in texts and "100" in texts  # decade ticks
     ns = "{http://www.w3.org/2000/svg}"
     fills = {p.get("fill") for p in root.iter(f"{ns}path")} | {r.get("fill") for r in root.iter(f"{ns}rect")}
-    assert {"#56B4E9", "#E69F00", "#009E73"} <= fills  # DKW band, draw envelope, KDE band (Okabe & Ito 2008)
+    assert {"#E69F00", "#009E73"} <= fills  # draw envelope, KDE band (Okabe & Ito 2008)
+    strokes = {p.get("stroke") for p in root.iter(f"{ns}path")}
+    assert "#56B4E9" in strokes  # the DKW band's limits, drawn as lines
     assert {"#D4E9F7", "#F9DCCB"} <= fills  # event spans
 
 
@@ -538,7 +545,7 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
 
     out, recs, pop, _ = pop_figures
     root, texts = _svg_texts((out / "events-Mg.svg").read_bytes())
-    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event", "upper bound",
+    for label in ("Dated boundaries and recharge events: Mg", "sample / crystal", "event (band: 95% range)", "upper bound",
                   "time since boundary formed (days, log scale; bars: 95%)"):
         assert label in texts, label
     ns = "{http://www.w3.org/2000/svg}"
@@ -566,10 +573,11 @@ def test_events_figure_rows_bars_and_spans(pop_figures):
     assert sx == pytest.approx(left, abs=0.6) and sx + sw == pytest.approx(right, abs=0.6)
     # ... and the PNG shows it there: light blue inside, not outside
     img = np.asarray(Image.open(io.BytesIO((out / "events-Mg.png").read_bytes())).convert("RGB")).astype(int)
-    row = round(sy + 4)
-    inside = img[row, round((left + right) / 2)]
+    k = 300 / 110  # the PNG is the drawing at 300 dpi; the SVG's units are pixels at 110 per inch
+    row = round((sy + 4) * k)
+    inside = img[row, round((left + right) / 2 * k)]
     assert (abs(inside - [0xD4, 0xE9, 0xF7]) <= 3).all()
-    for x in (round(left) - 4, round(right) + 4):
+    for x in (round(left * k) - 8, round(right * k) + 8):
         assert (abs(img[row, x] - [0xD4, 0xE9, 0xF7]) > 10).any()
 
 

@@ -30,15 +30,15 @@ _REVERSE_IS_RECHARGE = tuple(m.name for m in MINERAL_TABLE if m.reverse_is_recha
 
 
 def _is_recharge(step: dict, mineral: str) -> bool:
-    if step.get("recharge") == "recharge-like":
+    if step["recharge"] == "recharge-like":
         return True
-    return (mineral in _REVERSE_IS_RECHARGE and step.get("recharge") is None
-            and step.get("kind") == "reverse")
+    return (mineral in _REVERSE_IS_RECHARGE and step["recharge"] is None
+            and step["kind"] == "reverse")
 
 
 def select_boundaries(zones: dict, choice, mineral: str = "plagioclase") -> tuple[list[dict], list[str]]:
     """Boundaries to date: [{position_um, kind, recharge, position_sd_um}], and warnings."""
-    steps = list(zones.get("steps") or [])
+    steps = list(zones["steps"])
     warnings = []
     if choice == "recharge":
         chosen = [s for s in steps if _is_recharge(s, mineral)]
@@ -55,7 +55,8 @@ def select_boundaries(zones: dict, choice, mineral: str = "plagioclase") -> tupl
         for x in choice:
             k = match_position(float(x), positions)
             if k is None:
-                chosen.append({"position_um": float(x), "kind": "given", "recharge": None})
+                chosen.append({"position_um": float(x), "kind": "given", "recharge": None, "position_sd_um": None,
+                               "change": None})
                 warnings.append(f"boundary at {float(x):g} µm matches no step of the zoning analysis; "
                                 "dated at the given position")
             else:
@@ -67,10 +68,10 @@ def select_boundaries(zones: dict, choice, mineral: str = "plagioclase") -> tupl
     for s in chosen:
         out.append({
             "position_um": float(s["position_um"]),
-            "kind": s.get("kind"),
-            "recharge": s.get("recharge"),
-            "position_sd_um": s.get("position_sd_um"),
-            "change": s.get("change"),
+            "kind": s["kind"],
+            "recharge": s["recharge"],
+            "position_sd_um": s["position_sd_um"],
+            "change": s["change"],
         })
     out.sort(key=lambda b: b["position_um"])
     return out, warnings
@@ -89,6 +90,6 @@ def position_window(boundary, default):
     """Half-width (µm) within which the fit may refine the boundary's position."""
     if default is not None:
         return float(default)
-    sd = boundary.get("position_sd_um")
+    sd = boundary["position_sd_um"]
     sd = float(sd) if sd is not None and np.isfinite(sd) else 0.0
     return max(3.0, 2.0 * sd)

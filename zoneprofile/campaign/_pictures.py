@@ -10,29 +10,9 @@ import base64
 
 import numpy as np
 
+from zoneprofile.maps._picture import calibrated_image  # also drawn by map --plot
+
 __all__ = ["calibrated_image", "render_map", "render_figures"]
-
-def calibrated_image(info, max_side=700):
-    """The map converted to composition, outside the crystal blank, subsampled to ``max_side``.
-
-    Returns ``(image or None, stride)``.
-    """
-    cal, signal, mask = info.get("_calibration"), info.get("_signal"), info.get("_mask")
-    if cal is None or signal is None or not hasattr(cal, "to_composition"):
-        return None, 1
-    rows, cols = np.shape(signal)
-    stride = max(1, int(np.ceil(max(rows, cols) / max_side)))
-    sub = np.asarray(signal[::stride, ::stride], dtype=np.float32)
-    image = np.asarray(cal.to_composition(sub), dtype=float)
-    m = getattr(mask, "mask", None)
-    factor = int(getattr(mask, "factor", 1) or 1)
-    if m is not None:
-        r = np.minimum(np.arange(0, rows, stride) // factor, m.shape[0] - 1)
-        c = np.minimum(np.arange(0, cols, stride) // factor, m.shape[1] - 1)
-        inside = np.asarray(m)[np.ix_(r, c)]
-        image = np.where(inside, image, np.nan)
-    return image, stride
-
 
 def render_map(image, line, pixel_um, label) -> bytes:
     """PNG bytes of the (calibrated) map with the traverse line (dot = rim end), a colour bar and units."""
@@ -61,7 +41,7 @@ def render_map(image, line, pixel_um, label) -> bytes:
     return canvas.png()
 
 
-def render_figures(record: dict, formats, *, map_image=None) -> dict:
+def render_figures(record: dict, formats, *, map_image=None, width="double") -> dict:
     """Draw the crystal's report figure here (in the worker); return ``{format: base64 bytes}``.
 
     Figures are drawn with the crystal, in parallel, and cached with its
@@ -72,18 +52,20 @@ def render_figures(record: dict, formats, *, map_image=None) -> dict:
     """
     from zoneprofile.report.figures import crystal_figure_bytes
 
-    rec = {k: record.get(k) for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries")}
-    m = record.get("map")
+    rec = {k: record[k] for k in ("sample", "crystal", "mineral", "profile", "zones", "boundaries", "error")}
+    rec["crystal_model"] = record.get("crystal_model")  # its boundaries and curves are drawn
+    rec["trace_profile"] = record.get("trace_profile")  # the laser traverse the model was fitted to
+    m = record["map"]
     if isinstance(m, dict):
         m = {k: v for k, v in m.items() if k != "image_png_base64"}
         if map_image is not None:
             image, stride = map_image
             m["image"] = image
             m["line"] = [v / stride for v in m["line"]]
-            pixel = (record.get("parameters") or {}).get("pixel_um")
+            pixel = record["parameters"].get("pixel_um")
             m["pixel_um"] = pixel * stride if pixel else None
             if not pixel:
                 m["boundaries"] = []
         rec["map"] = m
-    drawn = crystal_figure_bytes(rec, tuple(formats))
+    drawn = crystal_figure_bytes(rec, tuple(formats), width=width)
     return {fmt: base64.b64encode(data).decode("ascii") for fmt, data in drawn.items()}

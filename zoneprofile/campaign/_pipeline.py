@@ -25,6 +25,7 @@ from pathlib import Path
 import numpy as np
 
 from zoneprofile._output import to_jsonable
+from zoneprofile._records import BoundaryRecord, CrystalRecord  # the layouts made here, declared once
 from zoneprofile._validation import InputError
 from zoneprofile.campaign._boundaries import (
     match_position,
@@ -184,35 +185,7 @@ def _budget_options(params):
     )
 
 
-def _merged_curve(curve: dict, points: dict) -> dict:
-    """Model curves and measured points on one axis (the sorted union of both grids).
-
-    Model, initial profile and band are interpolated at the data positions
-    (their grid is dense); the data are null between data positions. Plots
-    then show the points where they were measured and the curves unbroken.
-    """
-    gx = np.asarray(curve.get("distance_um") if curve.get("distance_um") is not None else [], dtype=float)
-    px = np.asarray(points.get("distance_um") if points.get("distance_um") is not None else [], dtype=float)
-    pv = np.asarray(points.get("value") if points.get("value") is not None else [], dtype=float)
-    if gx.size == 0:
-        return {"distance_um": _finite_list(px), "data": _finite_list(pv)}
-    x = np.union1d(gx, px)
-    out = {"distance_um": _finite_list(x)}
-    inside = (x >= gx.min()) & (x <= gx.max())
-    for name in ("model", "initial", "band_low", "band_high"):
-        values = curve.get(name)
-        if values is None or len(values) != gx.size:
-            continue
-        y = np.interp(x, gx, np.asarray(values, dtype=float))
-        out[name] = _finite_list(np.where(inside, y, np.nan))
-    data = np.full(x.size, np.nan)
-    if px.size and pv.size == px.size:
-        data[np.searchsorted(x, px)] = pv
-    out["data"] = _finite_list(data)
-    return out
-
-
-def _boundary_entry(result, boundary, element, obliquity):
+def _boundary_entry(result, boundary, element, obliquity) -> BoundaryRecord:
     d = dict(result.to_dict())
     entry = dict(d)
     entry["position_um"] = boundary["position_um"]
@@ -222,7 +195,9 @@ def _boundary_entry(result, boundary, element, obliquity):
     entry["element"] = element
     entry["obliquity_deg"] = obliquity
     entry.setdefault("warnings", [])
-    entry["curve"] = _merged_curve(d.get("curve") or {}, d.get("points") or {})
+    from zoneprofile.report._curves import merged_curve  # the figures' own merge (fit --plot uses it too)
+
+    entry["curve"] = merged_curve(d["curve"], d["points"])
     draws = getattr(result, "time_draws_days", None)
     entry["time_draws_days"] = _finite_list(draws) if draws is not None else []
     return entry
@@ -243,7 +218,7 @@ def _materialise(task):
     return {**task, "inputs": inputs, "payload": None}, folder
 
 
-def process_crystal(task: dict) -> dict:
+def process_crystal(task: dict) -> CrystalRecord:
     """Run one crystal through every stage and return its record.
 
     Parameters
@@ -271,14 +246,15 @@ def process_crystal(task: dict) -> dict:
     finally:
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)
-    if scratch is not None and record.get("error"):
+    if scratch is not None and record["error"]:
         record["error"] = record["error"].replace(str(scratch) + os.sep, "")
     formats = task.get("figure_formats")
     # a failed crystal is drawn too when its profile was read: the figure shows what was read and zoned
-    if formats and (not record.get("error") or record.get("profile")):
+    if formats and (not record["error"] or record["profile"]):
         t0 = time.perf_counter()
         try:
-            record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"))
+            record["_figures"] = render_figures(record, formats, map_image=transient.get("map_image"),
+                                                width=task.get("figure_width") or "double")
             record["timing_s"]["figure"] = time.perf_counter() - t0
         except (KeyboardInterrupt, SystemExit, MemoryError):
             raise
@@ -288,7 +264,7 @@ def process_crystal(task: dict) -> dict:
     return to_jsonable(record)
 
 
-def _base_record(task):
+def _base_record(task) -> CrystalRecord:
     return {
         "sample": task["sample"],
         "crystal": task["crystal"],
@@ -372,9 +348,9 @@ def _stages(task, record, transient):
             transient["map_image"] = (image, stride)
         entry = {
             "line": list(params["line"]),
-            "calibration": info.get("calibration"),
-            "boundaries": info.get("boundaries", []),
-            "resorption_evidence": info.get("resorption_evidence", []),
+            "calibration": info["calibration"],
+            "boundaries": info["boundaries"],
+            "resorption_evidence": info["resorption_evidence"],
             "image_png": None,
         }
         if image is not None:
@@ -387,7 +363,7 @@ def _stages(task, record, transient):
                 raise
             except Exception as exc:  # noqa: BLE001 - a picture is not worth failing the crystal
                 warnings.append(f"map picture not drawn: {_one_line(exc)}")
-        for note in info.get("warnings", []) or []:
+        for note in info["warnings"]:
             warnings.append(f"map: {note}")
         record["map"] = entry
         if record["profile"] is None:
@@ -453,7 +429,7 @@ def _stages(task, record, transient):
 
     # 4. zoning
     evidence = None
-    if map_info is not None and map_info.get("resorption_evidence"):
+    if map_info is not None and map_info["resorption_evidence"]:
         evidence = list(map_info["resorption_evidence"])
 
     def zoning():
@@ -471,8 +447,8 @@ def _stages(task, record, transient):
     # neighbours that bound each fit's points: the dated boundaries and every other step
     # (a step that a dated boundary stands for is not its own neighbour)
     chosen = [b["position_um"] for b in boundaries]
-    others = [float(st["position_um"]) for st in zones.get("steps") or []
-              if match_position(float(st["position_um"]), chosen, sd=st.get("position_sd_um")) is None]
+    others = [float(st["position_um"]) for st in zones["steps"]
+              if match_position(float(st["position_um"]), chosen, sd=st["position_sd_um"]) is None]
     all_positions = sorted(set(others) | set(chosen))
 
     # 5. fit each boundary with each element
@@ -489,8 +465,8 @@ def _stages(task, record, transient):
         elif trace is not None and _column(trace, "An") is not None:
             keep = np.isfinite(np.asarray(trace["An"], float))
             an, an_x = np.asarray(trace["An"], float)[keep], np.asarray(trace["distance_um"], float)[keep]
-    map_bounds = (map_info or {}).get("boundaries") or []
-    map_positions = [float(b["position_um"]) for b in map_bounds if b.get("position_um") is not None]
+    map_bounds = map_info["boundaries"] if map_info is not None else []
+    map_positions = [float(b["position_um"]) for b in map_bounds if b["position_um"] is not None]
 
     # model = "crystal": the whole-crystal model dates a crystal of two or more boundaries from
     # the zoning's positions, instead of (not after) the Monte Carlo per-boundary fits; a
@@ -500,18 +476,18 @@ def _stages(task, record, transient):
 
         if crystal_first(record, boundaries, params, task, table=table, trace=trace, map_profile=map_profile,
                          an=an, an_x=an_x, an_beam=an_beam, timing=timing, run_stage=_run_stage,
-                         map_obliquity=[b.get("obliquity_deg") for b in map_bounds]):
+                         map_obliquity=[b["obliquity_deg"] for b in map_bounds]):
             return
 
     fitted = []
     failures = []
     for rank, boundary in enumerate(boundaries):
         obliquity = params.get("obliquity_deg")
-        k = match_position(boundary["position_um"], map_positions, sd=boundary.get("position_sd_um"))
-        if k is not None and map_bounds[k].get("obliquity_deg") is not None:
+        k = match_position(boundary["position_um"], map_positions, sd=boundary["position_sd_um"])
+        if k is not None and map_bounds[k]["obliquity_deg"] is not None:
             obliquity = float(map_bounds[k]["obliquity_deg"])
         obliquity_sd = 0.0
-        if k is not None and map_bounds[k].get("obliquity_sd_deg") is not None:
+        if k is not None and map_bounds[k]["obliquity_sd_deg"] is not None:
             obliquity_sd = float(map_bounds[k]["obliquity_sd_deg"])
         window = position_window(boundary, params.get("boundary_window_um"))
         # the window is drawn by the fit: outside each neighbour's diffused zone (diffusion._window)

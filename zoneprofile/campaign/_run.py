@@ -40,6 +40,7 @@ class RunSummary(RunVocabulary):
     figures: list = field(default_factory=list)  # per record: {format: bytes} drawn with the crystal, or None
     notes: list = field(default_factory=list)  # things the user should know about the run itself
     formats: tuple = ("png", "svg")
+    figure_width: str = "double"  # print width of the figures (campaign key figure_width)
 
     def to_frame(self):
         """One row per crystal (the report's crystals table)."""
@@ -99,6 +100,7 @@ def build_tasks(campaign: Campaign, *, ship_bytes: bool = False, formats=None) -
             "parameters": to_jsonable(spec.parameters),
             "payload": payload or None,
             "figure_formats": list(formats) if formats else None,
+            "figure_width": getattr(campaign, "figure_width", "double"),
         }
         task["key"] = task_key(task, __version__)
         tasks.append(task)
@@ -123,7 +125,7 @@ def _safe_name(text: str) -> str:
 
 
 def _laws_used(records) -> list:
-    ids = sorted({b.get("law") for r in records for b in r.get("boundaries") or [] if b.get("law")})
+    ids = sorted({b["law"] for r in records for b in r["boundaries"] if b["law"]})
     out = []
     try:
         from zoneprofile.diffusion import get_law
@@ -144,15 +146,15 @@ def _partition_models(records) -> dict:
     """Partition model used per element (plagioclase trace elements), from the fits' set-up."""
     found = {}
     for r in records:
-        for b in r.get("boundaries") or []:
-            setup = b.get("model_setup") or {}
-            name = setup.get("partition_model") or b.get("partition_model")
+        for b in r["boundaries"]:
+            setup = b["model_setup"]
+            name = setup.get("partition_model")  # model_setup: the fit's own settings, free-form
             if not name:
                 continue
-            entry = {"model": name, "mineral": r.get("mineral"),
+            entry = {"model": name, "mineral": r["mineral"],
                      "a_j_mol": setup.get("partition_a_j_mol"), "b_j_mol": setup.get("partition_b_j_mol"),
                      "initial_condition": setup.get("initial_condition")}
-            found.setdefault(str(b.get("element")), entry)
+            found.setdefault(str(b["element"]), entry)
     return found
 
 
@@ -187,7 +189,7 @@ def _provenance(campaign: Campaign, tasks, records, summary, *, workers, schedul
 def _extract_map_images(records, folder: Path) -> None:
     """Write map PNGs carried in records to ``folder/figures/maps`` and point the records at them."""
     for r in records:
-        m = r.get("map")
+        m = r["map"]
         if not m or not m.get("image_png_base64"):
             continue
         name = f"map_{_safe_name(r['sample'])}_{_safe_name(r['crystal'])}.png"
@@ -277,7 +279,8 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
     tasks = build_tasks(campaign, ship_bytes=ship, formats=fmts)
     store = ResultCache(campaign.cache_dir) if (cache and campaign.cache_dir is not None) else None
     records: list = [None] * len(tasks)
-    summary = RunSummary(out_dir=Path("."), records=records, formats=fmts)
+    width = getattr(campaign, "figure_width", "double")
+    summary = RunSummary(out_dir=Path("."), records=records, formats=fmts, figure_width=width)
     summary.figures = [None] * len(tasks)
     pending = []
     shown = time.monotonic()
@@ -286,10 +289,11 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
             shown = time.monotonic()
             bar.phase(f"looking up crystals in the cache: {i}/{n}, {len(summary.from_cache)} found")
         hit = store.get(task["key"]) if store is not None else None
-        figures = store.get_figures(task["key"], fmts) if hit is not None else None
+        # cached figures are double-column ones: another width is drawn again (the record is reused)
+        figures = store.get_figures(task["key"], fmts) if hit is not None and width == "double" else None
         # a mapped crystal cached without the figure formats asked for is drawn again with its map
         # (the map image is not kept in the record); other figures are drawn at the end if missing
-        if hit is not None and (figures is not None or not hit.get("map")):
+        if hit is not None and (figures is not None or not hit["map"]):
             records[i] = hit
             summary.figures[i] = figures
             summary.from_cache.append(f"{task['sample']}/{task['crystal']}")
@@ -311,11 +315,11 @@ def execute_campaign(campaign: Campaign, *, workers: int = 1, scheduler: str | N
         summary.figures[i] = figures
         label = f"{task['sample']}/{task['crystal']}"
         summary.computed.append(label)
-        if record.get("error"):
+        if record["error"]:
             summary.failed.append((label, record["error"]))
         elif store is not None and not cache_broken:
             try:
-                store.put(task["key"], record, figures)
+                store.put(task["key"], record, figures if width == "double" else None)
             except OSError as exc:
                 cache_broken.append(True)
                 summary.notes.append(f"cache folder {store.folder} is not writable ({exc.strerror or exc}); "
@@ -353,7 +357,7 @@ def write_campaign_outputs(summary: RunSummary, folder, *, formats=None) -> None
     fmts = summary.formats if formats is None else _figure_formats(formats)
     records = [dict(r) for r in summary.records]
     for r in records:
-        if isinstance(r.get("map"), dict):
+        if isinstance(r["map"], dict):
             r["map"] = dict(r["map"])
     _extract_map_images(records, folder)
     given = {}
@@ -368,4 +372,4 @@ def write_campaign_outputs(summary: RunSummary, folder, *, formats=None) -> None
         given[i] = fig_dir / f"{name}.png"
     title = summary.provenance.get("parameters", {}).get("title") or None
     write_outputs(records, summary.population, summary.provenance, folder, formats=tuple(fmts), title=title,
-                  crystal_figures=given)
+                  crystal_figures=given, figure_width=summary.figure_width)

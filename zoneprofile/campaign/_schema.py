@@ -74,7 +74,8 @@ BUILTIN = {
 #: Largest campaign file read (a 10,000-crystal campaign is about 1 MB).
 CAMPAIGN_MAX_BYTES = 64_000_000
 
-_TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache", "defaults", "samples", "crystals")
+_TOP_KEYS = ("title", "comment", "seed", "draws", "allow_outside_paths", "cache", "figure_width", "defaults", "samples",
+             "crystals")
 _SETTING_KEYS = (
     "mineral", "column", "elements", "temperature_c", "temperature_sd_c", "beam_um", "beam_shape",
     "trace_beam_um", "trace_beam_shape", "rim", "stage_units", "boundaries", "boundary_window_um",
@@ -120,6 +121,7 @@ class Campaign:
     defaults: dict
     samples: dict
     crystals: list[CrystalSpec]
+    figure_width: str = "double"  # print width of the report's figures (zoneprofile/_limits.py CHOICES)
 
     def settings(self) -> dict:
         """The campaign-level parameters as written into provenance."""
@@ -129,6 +131,7 @@ class Campaign:
             "seed": self.seed,
             "draws": self.draws,
             "allow_outside_paths": self.allow_outside,
+            "figure_width": self.figure_width,
             "defaults": self.defaults,
             "samples": self.samples,
         }
@@ -507,6 +510,10 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
     seed = _limited(ctx, doc.get("seed", 0), ("seed",), "seed")
     draws = _limited(ctx, doc.get("draws", 1000), ("draws",), "draws")
     outside = _boolean(ctx, doc.get("allow_outside_paths", False), ("allow_outside_paths",)) or allow_outside
+    from zoneprofile._limits import CHOICES
+
+    width_choices, width_default, _ = CHOICES["figure_width"]
+    figure_width = _text(ctx, doc.get("figure_width", width_default), ("figure_width",), choices=width_choices)
     cache_value = doc.get("cache", ".zoneprofile-cache")
     if cache_value is False or cache_value == "":
         cache_dir = None
@@ -654,4 +661,5 @@ def load_campaign(path, *, allow_outside: bool = False) -> Campaign:
         defaults=defaults,
         samples=samples,
         crystals=crystals,
+        figure_width=figure_width,
     )

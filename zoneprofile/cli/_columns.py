@@ -52,14 +52,25 @@ def _check_column(frame, col, path, *, low=0.0, high=None, what="concentration")
     return values
 
 
-def read_sd(frame, col, path):
-    """The column's 1-sigma precision ``{col}_sd`` when every point has one (each > 0), else None."""
+def read_sd(frame, col, path, notes=None):
+    """The column's 1-sigma precision ``{col}_sd`` when every point has one (each > 0), else None.
+
+    A ``{col}_sd`` column with blank cells among the analyses fitted is not used
+    (one precision per point or none); ``notes`` (a list) then gets a sentence
+    saying so, since the fit falls back on the noise of the residuals.
+    """
     import numpy as np
 
     from zoneprofile._validation import InputError
 
     name = f"{col}_sd"
-    if name not in frame or not np.all(np.isfinite(frame[name].to_numpy(float))):
+    if name not in frame:
+        return None
+    missing = int(np.count_nonzero(~np.isfinite(frame[name].to_numpy(float))))
+    if missing:
+        if notes is not None:
+            notes.append(f"{name} is blank for {missing} of the {len(frame)} analyses fitted, so it is not used: "
+                         "the noise is estimated from the fit's residuals; fill every cell to weight by it")
         return None
     sd = _check_column(frame, name, path, what="1-sigma precision")
     if np.any(sd <= 0):

@@ -90,13 +90,14 @@ def run_crystal(args):
                          include_flagged=args.include_flagged)
     distance = frame["distance_um"].to_numpy(float)
     profiles = {}
+    input_notes = []
     for el, col in columns.items():
         if col == "X_Fe":
             _check_column(frame, col, profile_path, low=0.0, high=1.0, what="X_Fe")
             values = 100.0 * (1.0 - frame[col].to_numpy(float))
         else:
             values = _check_column(frame, col, profile_path, what="concentration")
-        sd = read_sd(frame, col, profile_path)
+        sd = read_sd(frame, col, profile_path, input_notes)
         profiles[el] = {"distance_um": distance, "value": values, "sd": sd, "beam_um": args.beam_um,
                         "beam_shape": args.beam_shape}
     an = an_x = None
@@ -132,6 +133,7 @@ def run_crystal(args):
             raise InputError(exc.message, path=profile_path, row=exc.row, column=exc.column, text=exc.text) from None
         raise
     record = result.to_record()
+    record["warnings"][:0] = input_notes
     if args.rim == "auto":
         record["warnings"].append("the rim was taken as open (held in equilibrium with each stage's melt); "
                                   "give --rim closed if the rim did not exchange with the melt")

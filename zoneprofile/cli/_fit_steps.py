@@ -124,12 +124,16 @@ def run_several(args, names, run_single) -> int:
             if abs(float(f.position_um) - x) <= MATCH_UM + 0.05 and f.element in note:
                 f.warnings.append(note)
                 break
+    from zoneprofile.cli._fit_notes import print_shared, take_shared
+
+    shared = take_shared(fits)  # run-level notes once (cli/_fit_notes.py)
     document = collected[0][1]
     document["fits"] = [f.to_dict() for f in fits]
     document["input"]["value_column"] = [d["input"]["value_column"] for _, d in collected]
     document["input"]["options"]["element"] = args.element
-    document["warnings"] = notes
+    document["warnings"] = shared + [n for n in notes if n not in shared]
     write_json(args.output, document)
+    print_shared(shared)
     for f in fits:
         print(f.report())
     return 0

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from zoneprofile.cli._columns import _check_column, _header, _value_column, read_an, read_sd  # shared with fit --crystal
+from zoneprofile.cli._figure_width import add_figure_width
 
 DESCRIPTION = """\
 Fit the diffusion equation to one or more zone boundaries of a profile and turn
@@ -100,7 +101,9 @@ def configure(parser):
                         help="temperature-time path table with columns time_days, temperature_c (non-isothermal)")
     parser.add_argument("--include-flagged", action="store_true", help="keep points whose qc is not 'ok'")
     parser.add_argument("-o", "--output", required=True, metavar="FIT.json", help="results (JSON)")
-    parser.add_argument("--plot", metavar="FIG", help="figure of data, fit, initial profile and band (.png/.svg/.pdf)")
+    parser.add_argument("--plot", metavar="FIG", help="figure of data, fit, initial profile and band (.png/.svg/.pdf): "
+                        "the report's drawing of these boundaries")
+    add_figure_width(parser)
     parser.add_argument("--force", action="store_true", help="overwrite existing outputs")
     parser.add_argument("--crystal", action="store_true",
                         help="date all --boundary-um boundaries in one whole-crystal model (zones grown event by "
@@ -251,7 +254,7 @@ def _run_single(args, _collect=None):
     if factor is not None:
         values = values * factor
     distance = frame["distance_um"].to_numpy(float)
-    value_sd = read_sd(frame, col, profile_path)
+    value_sd = read_sd(frame, col, profile_path, input_notes)
     if value_sd is not None:
         if col == "X_Fe":
             value_sd = 100.0 * value_sd
@@ -319,8 +322,12 @@ def _run_single(args, _collect=None):
             raise
         fits.append(result)
 
+    from zoneprofile.cli._fit_notes import print_shared, take_shared
+
+    shared = [] if _collect is not None else take_shared(fits)  # several elements: taken over all of them
     document = {
         "fits": [r.to_dict() for r in fits],
+        "warnings": shared,
         "input": {
             "profile": str(profile_path),
             "sha256": hashlib.sha256(profile_path.read_bytes()).hexdigest(),
@@ -340,18 +347,15 @@ def _run_single(args, _collect=None):
     if plot is not None:
         from zoneprofile.diffusion._plot import fit_figure
 
-        figure = fit_figure(fits, value_label=_label(col, element), an=(an_x, an) if an is not None else None,
-                            fmt=Path(plot).suffix.lower()[1:])
+        figure = fit_figure(fits, fmt=Path(plot).suffix.lower()[1:], value_sd=value_sd, distance_um=distance,
+                            width=getattr(args, "figure_width", "double"))
     write_json(out, document)
     if figure is not None:
         write_bytes(plot, figure)
+    print_shared(shared)
     for r in fits:
         print(r.report())
     return 0
-
-
-def _label(col, element):
-    return {"Fo": "Fo (mol%)", "X_Fe": "Fo (mol%)", "Mg_number": "Mg# (mol%)"}.get(col, f"{element} (ppm)")
 
 
 def _budget_options(args):

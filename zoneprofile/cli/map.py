@@ -20,6 +20,8 @@ Example:
       --line 120,88,260,190 --width-px 7 -o plag7_map.csv --plot plag7_map.png
 """
 
+from zoneprofile.cli._figure_width import add_figure_width
+
 
 def _floats(text, n, name):
     from zoneprofile._validation import InputError
@@ -55,7 +57,9 @@ def configure(parser):
     parser.add_argument("--boundary-um", action="append", default=None, metavar="X",
                         help="measure the boundary at this distance instead of finding boundaries (repeatable)")
     parser.add_argument("-o", "--output", required=True, metavar="PROFILE.csv", help="profile table to write")
-    parser.add_argument("--plot", default=None, metavar="FIG", help="figure to write (.png, .svg or .pdf)")
+    parser.add_argument("--plot", default=None, metavar="FIG", help="figure to write (.png, .svg or .pdf): the "
+                        "report's profile and map panels")
+    add_figure_width(parser)
     parser.add_argument("--force", action="store_true", help="overwrite existing outputs")
 
 
@@ -98,15 +102,12 @@ def run(args) -> int:
     record["software"] = {"name": "zoneprofile", "version": __version__, "command": "map"}
     record["profile_file"] = out.name
     fig_bytes = None
-    if fig_path is not None:
-        import io
-
+    if fig_path is not None:  # the report's profile and map panels (one figure system: docs/report.md)
         from zoneprofile.maps.plot import plot_map_profile
+        from zoneprofile.report.figures import canvas_bytes
 
-        figure = plot_map_profile(profile, info, None, column=args.column)
-        buf = io.BytesIO()
-        figure.savefig(buf, format=fig_path.suffix.lower()[1:], dpi=150)
-        fig_bytes = buf.getvalue()
+        canvas = plot_map_profile(profile, info, None, column=args.column, width=args.figure_width)
+        fig_bytes = canvas_bytes(canvas, fig_path.suffix.lower()[1:])
     write_table(out, profile)
     write_json(json_path, record)
     if fig_bytes is not None:

@@ -46,6 +46,11 @@ def configure(parser):
     parser.add_argument("--figures", default="png,svg", metavar="FORMATS",
                         help="figure formats, comma-separated from png, svg, pdf (default png,svg)")
     parser.add_argument("--quiet", action="store_true", help="no progress bar and no summary on stderr")
+    from zoneprofile._limits import CHOICES
+
+    parser.add_argument("--figure-width", choices=CHOICES["figure_width"][0], default=None, metavar="single|double",
+                        help="print width of the figures: single (one column, 90 mm) or double (two columns, "
+                             "180 mm); default: the campaign's figure_width, else double")
 
 
 def _formats(text):
@@ -85,6 +90,8 @@ def run(args):
     except BaseException:
         line.close()
         raise
+    if args.figure_width is not None:
+        campaign.figure_width = args.figure_width
     summary = run_campaign(campaign, args.out, workers=args.workers, scheduler=args.scheduler, force=args.force,
                            progress=not args.quiet, cache=not args.no_cache, formats=formats)
     if not args.quiet:

@@ -18,6 +18,8 @@ Outputs: ZONES.json (-o), a paste-ready zone table (--table .csv/.tsv/.xlsx),
 a figure (--plot .png/.svg/.pdf).
 """
 
+from zoneprofile.cli._figure_width import add_figure_width
+
 _ELEMENTS = ("Li Be B Na Mg Al P K Ca Sc Ti V Cr Mn Fe Co Ni Cu Zn Ga Ge Rb Sr Y Zr Nb Cs Ba La Ce Pr Nd Sm Eu "
              "Gd Tb Dy Ho Er Tm Yb Lu Hf Ta Pb Th U").split()
 _OXIDES = ("SiO2", "TiO2", "Al2O3", "FeO", "Fe2O3", "MnO", "MgO", "CaO", "SrO", "BaO", "Na2O", "K2O", "P2O5")
@@ -34,7 +36,9 @@ def configure(parser):
                         help="end-member melt concentrations for lever-rule mixing (repeatable)")
     parser.add_argument("--min-step", type=float, metavar="X", help="smallest step reported (default 3 noise sd)")
     parser.add_argument("--table", metavar="ZONES.csv", help="also write the zone table (.csv, .tsv, .xlsx)")
-    parser.add_argument("--plot", metavar="FIG.png", help="also draw the figure (.png, .svg, .pdf)")
+    parser.add_argument("--plot", metavar="FIG.png", help="also draw the figure (.png, .svg, .pdf): the report's "
+                        "profile panel; points flagged by QC drawn hollow and grey")
+    add_figure_width(parser)
     parser.add_argument("--include-flagged", action="store_true", help="keep points whose qc is not ok")
     parser.add_argument("--sheet", help="sheet name of an .xlsx workbook")
     parser.add_argument("--force", action="store_true", help="overwrite existing outputs")
@@ -122,8 +126,41 @@ def run(args) -> int:
     if args.table:
         write_table(args.table, result.zones_table())
     if args.plot:
-        from zoneprofile.zoning import plot_zoning
+        from zoneprofile.report.figures import write_figure, zoning_canvas
 
-        plot_zoning(result, args.plot, value_sd=value_sd)
+        write_figure(zoning_canvas(_figure_record(result, args, column, value_sd, frame),
+                                   width=args.figure_width), args.plot)
     print(result.summary())
     return 0
+
+
+def _figure_record(result, args, column, value_sd, frame):
+    """The record part the report draws for this profile: every point read, flagged ones marked.
+
+    Points left out by QC are read again (with their flags) only for the figure;
+    when they cannot be read as numbers the figure shows the points analysed.
+    """
+    import numpy as np
+
+    from zoneprofile._validation import InputError
+    from zoneprofile.io import read_profile
+    from zoneprofile.report.figures import zoning_record
+
+    if not args.include_flagged:
+        try:
+            full = read_profile(args.profile, columns=(column,), optional=(f"{column}_sd",), include_flagged=True,
+                                sheet=args.sheet)
+        except InputError:
+            full = None
+        if full is not None and len(full) > len(frame):
+            qc = ["ok" if str(q).strip().lower() in ("ok", "") else str(q) for q in full["qc"]]
+            sd = None
+            if value_sd is not None and f"{column}_sd" in full:
+                sd = full[f"{column}_sd"].to_numpy(dtype=float)
+            elif args.noise_sd is not None:
+                sd = np.full(len(full), float(args.noise_sd))
+            return zoning_record(result, value_sd=sd, qc=qc, distance_um=full["distance_um"].to_numpy(float),
+                                 value=full[column].to_numpy(float))
+    sd = value_sd if value_sd is not None else (
+        np.full(len(frame), float(args.noise_sd)) if args.noise_sd is not None else None)
+    return zoning_record(result, value_sd=sd)

@@ -145,6 +145,7 @@ class LinearModel:
         self._n_rational = 0
         self._p_out = None
         self._coef_cache = (None, None)
+        self._coef_basis, self._coef_updates = None, 0
 
     # ------------------------------------------------------------------ evaluator choice
     @property
@@ -165,11 +166,35 @@ class LinearModel:
         """Unit initial profiles minus their steady states, shape (n_values, N)."""
         return self.initial.basis(self.problem.grid, boundary) - self._css
 
+    #: full products between incremental updates of the spectral coefficients (bounds rounding drift)
+    _COEF_REFRESH = 256
+
     def _coef(self, boundary):
+        """Spectral coefficients of the unit initial profiles, shape (n_values, N).
+
+        A moved boundary changes the basis in the few cells between the old and the
+        new position only, so the coefficients are updated from those cells
+        (O(N · cells)) instead of the full product (O(N²)); a full product every
+        ``_COEF_REFRESH`` updates keeps the sum's rounding at machine precision.
+        """
         b = float(boundary)
-        if self._coef_cache[0] != b:
-            self._coef_cache = (b, self._dc(b) @ self.operator._in.T)
-        return self._coef_cache[1]
+        cached_b, coef = self._coef_cache
+        if cached_b == b:
+            return coef
+        basis = self.initial.basis(self.problem.grid, b)
+        m_in = self.operator._in
+        if cached_b is not None and self._coef_updates < self._COEF_REFRESH:
+            delta = basis - self._coef_basis
+            cells = np.flatnonzero(np.any(delta != 0.0, axis=0))
+            if 8 * cells.size <= basis.shape[1]:
+                coef = coef + delta[:, cells] @ m_in[:, cells].T
+                self._coef_updates += 1
+                self._coef_basis, self._coef_cache = basis, (b, coef)
+                return coef
+        coef = (basis - self._css) @ m_in.T
+        self._coef_updates = 0
+        self._coef_basis, self._coef_cache = basis, (b, coef)
+        return coef
 
     def _dbasis(self, boundary):
         """d(unit initial profiles)/d(boundary): (n_values, N), nonzero in the cut cell only."""

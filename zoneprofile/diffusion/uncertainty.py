@@ -151,6 +151,10 @@ class FitResult(FitVocabulary):
                          f"[{p['min']:.4g}, {p['max']:.4g}]){flag}")
         budget = ", ".join(f"{k} {v:.3f}" for k, v in self.uncertainty_budget.items() if v is not None)
         lines.append(f"  sd of log10 time by source: {budget}")
+        if self.time_days.get("statement") != "date":
+            # the draws pile at the shortest time the model resolves, so their spread (total, clipped there)
+            # and each source's spread alone (not clipped) do not add up and do not describe the bound
+            lines.append("    (not a date: these spreads describe the draws, not the bound; read the bound above)")
         for w in self.warnings:
             lines.append(f"  warning: {w}")
         lines.append("  Diffusion timescales inform, and do not replace, hazard assessment, which belongs "

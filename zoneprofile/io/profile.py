@@ -147,7 +147,9 @@ def read_profile(
     columns : sequence of str
         Value columns that must be present and numeric in every kept row.
     optional : sequence of str
-        Value columns read when present (numeric, blanks become NaN).
+        Value columns read when present (numeric, blanks become NaN); not read
+        in rows whose ``allow_blank``/``allow_censored`` value is blank or
+        below detection (those rows are left out by the caller).
     include_flagged : bool
         Keep points whose ``qc`` is not ``ok`` (default: leave them out).
     allow_blank : sequence of str
@@ -193,9 +195,19 @@ def read_profile(
         out[col] = _to_float(frame, names[col], p, allow_blank=col in allow_blank, censored=mask)
         if mask is not None:
             out[f"{col}_censored"] = mask
+    # a row whose value is below detection or blank is left out by the caller, so its optional cells
+    # (the value's _sd, An) are not read: "<0.01" beside "bdl" must not stop the table
+    left_out = np.zeros(len(frame), bool)
+    for col in set(allow_censored) | set(allow_blank):
+        if col in out:
+            left_out |= ~np.isfinite(out[col].to_numpy(float))
     for col in optional:
         if col in names and col not in out:
-            out[col] = _to_float(frame, names[col], p, allow_blank=True)
+            values = np.full(len(frame), np.nan)
+            kept = ~left_out
+            if kept.any():
+                values[kept] = _to_float(frame[kept], names[col], p, allow_blank=True)
+            out[col] = values
     out["point"] = frame[names["point"]].astype(str).to_numpy() if "point" in names else [
         str(r) for r in out["_row"]
     ]

@@ -18,10 +18,10 @@ from __future__ import annotations
 from pathlib import Path
 
 from zoneprofile._output import write_json, write_text
+from zoneprofile._units import format_days  # the one time formatter (re-exported for the report's users)
 from zoneprofile._validation import InputError
 from zoneprofile.report.figures import (
     FIGURE_FORMATS,
-    format_days,
     render_crystal_figure,
     render_population_figures,
     slug,
@@ -66,6 +66,9 @@ def _clean_record(record: dict) -> dict:
         m = {k: v for k, v in m.items() if k != "image"}
         m["image"] = "omitted (array)"
         rec["map"] = m
+    cm = rec.get("crystal_model")
+    if isinstance(cm, dict) and "curves" in cm:  # the model's profiles stay in the cache, as fit curves do
+        rec["crystal_model"] = {k: v for k, v in cm.items() if k != "curves"}
     rec.setdefault("error", None)
     rec.setdefault("recharge_intervals_days", [])
     return rec
@@ -102,7 +105,7 @@ def _formats(formats) -> list[str]:
 
 
 def write_outputs(records, population, provenance, out_dir, *, formats=("png", "svg"), title=None,
-                  crystal_figures=None, crystal_formats=None, map_dir=None) -> dict:
+                  crystal_figures=None, crystal_formats=None, map_dir=None, figure_width="double") -> dict:
     """Write the report, results.json, tables and figures into ``out_dir``.
 
     Parameters
@@ -134,6 +137,10 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
         (SVG) of CPU on the development machine.
     map_dir : path-like, optional
         Folder that ``map.image_png`` paths are relative to; default ``out_dir``.
+    figure_width : {"single", "double"}
+        Print width of every figure (crystal, chronology, events, and the
+        population's paper figures ``ladders``, ``profiles-N``): one journal
+        column (90 mm) or two (180 mm).
 
     Returns
     -------
@@ -169,14 +176,18 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
                     figures.append(sibling)
             continue
         paths = render_crystal_figure(rec, fig_dir / (crystal_figure_name(rec, k) + ".png"),
-                                      formats=crystal_fmts, map_dir=map_dir)
+                                      formats=crystal_fmts, map_dir=map_dir, width=figure_width)
         figures += paths
         crystal_pngs[k] = next(p for p in paths if p.suffix == ".png")
-    pop = render_population_figures(population, fig_dir, formats=fmts)
+    pop = render_population_figures(population, fig_dir, formats=fmts, width=figure_width)
     pop_pngs = {}
     for el, d in pop.items():
         figures += d["chronology"] + d["events"]
         pop_pngs[el] = {kind: next(p for p in paths if p.suffix == ".png") for kind, paths in d.items()}
+    from zoneprofile.report.population_figures import render_paper_figures
+
+    paper = render_paper_figures(records, population, fig_dir, formats=fmts, width=figure_width)
+    figures += paper.files
 
     tables = write_tables(records, population, out / "tables")
     doc = results_json(records, population, provenance)
@@ -185,7 +196,8 @@ def write_outputs(records, population, provenance, out_dir, *, formats=("png", "
     tables.append(write_supplement(records, population, doc["provenance"], out / "supplement.xlsx"))
     results = write_json(out / "results.json", doc)
     page = build_html(records, population, doc["provenance"], laws=doc["provenance"]["laws"],
-                      crystal_pngs=crystal_pngs, population_pngs=pop_pngs, title=title)
+                      crystal_pngs=crystal_pngs, population_pngs=pop_pngs, title=title,
+                      paper_figures=paper)
     report = write_text(out / "report.html", page)
     files = [p.resolve().relative_to(out.resolve()).as_posix() for p in [report, results, *tables, *figures]]
     return {"files": files, "report": report, "results": results, "figures": figures, "tables": tables}

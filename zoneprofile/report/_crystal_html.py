@@ -19,7 +19,7 @@ def _e(x) -> str:
 
 def model_of(record) -> dict:
     """The record's whole-crystal model, or {} (failed crystals and malformed entries give {})."""
-    cm = record.get("crystal_model") if not record.get("error") else None
+    cm = record.get("crystal_model") if not record["error"] else None
     return cm if isinstance(cm, dict) and isinstance(cm.get("boundaries"), list) else {}
 
 
@@ -76,7 +76,7 @@ def gap_rows(records) -> list[list[str]]:
     for r in records:
         for g in model_of(r).get("gaps") or []:
             if isinstance(g, dict):
-                rows.append([_e(r.get("sample")), _e(r.get("crystal")), _e(g.get("older")), _e(g.get("younger")),
+                rows.append([_e(r["sample"]), _e(r["crystal"]), _e(g.get("older")), _e(g.get("younger")),
                              _e((g.get("days") or {}).get("statement")), _statement(g.get("days"))])
     return rows
 
@@ -85,17 +85,17 @@ def glance_rows(population, fmt, num) -> list[list[str]]:
     """Rows of "Recharge events at a glance" from the population's events (all crystals)."""
     rows = []
     for e in ((population or {}).get("events") or {}).get("events") or []:
-        age = e.get("age_days") or {}
-        frac = e.get("fraction_of_crystals")
-        rows.append([_e(e.get("id")), "all", _e(fmt(age.get("median"))),
-                     f"{_e(fmt(age.get('p2_5')))} – {_e(fmt(age.get('p97_5')))}", str(e.get("n_crystals")),
+        age = e["age_days"]  # PopulationEvent (zoneprofile/_records.py)
+        frac = e["fraction_of_crystals"]
+        rows.append([_e(e["id"]), "all", _e(fmt(age["median"])),
+                     f"{_e(fmt(age['p2_5']))} – {_e(fmt(age['p97_5']))}", str(e["n_crystals"]),
                      num(100 * frac, 3) + " %" if frac is not None else ""])
     return rows
 
 
 def per_element_note(records) -> str:
     """A note before the per-element summaries when some crystals were dated by the whole-crystal model."""
-    ok = [r for r in records if not r.get("error")]
+    ok = [r for r in records if not r["error"]]
     n_model = sum(1 for r in ok if model_of(r).get("boundaries"))
     if not n_model:
         return ""

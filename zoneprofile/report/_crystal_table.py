@@ -13,7 +13,7 @@ import pandas as pd
 
 __all__ = ["CRYSTAL_MODEL_COLUMNS", "crystal_model_table"]
 
-CRYSTAL_MODEL_COLUMNS = ["sample", "crystal", "boundary", "position_um", "given_position_um", "element",
+CRYSTAL_MODEL_COLUMNS = ["sample", "crystal", "boundary", "position_um", "fitted_position_um", "element",
                          "statement", "median_days", "p2_5_days", "p97_5_days", "upper_bound_days",
                          "lower_bound_days", "concordance", "concordance_reasons", "temperature_c",
                          "obliquity", "warnings"]
@@ -33,10 +33,10 @@ def crystal_model_table(records) -> pd.DataFrame:
     """Rows of ``crystal_model.csv`` for the records that carry a whole-crystal model."""
     rows = []
     for r in records or []:
-        cm = r.get("crystal_model") if not r.get("error") else None
+        cm = r.get("crystal_model") if not r["error"] else None
         if not isinstance(cm, dict):
             continue
-        common = {"sample": r.get("sample"), "crystal": r.get("crystal"), "temperature_c": cm.get("temperature_c"),
+        common = {"sample": r["sample"], "crystal": r["crystal"], "temperature_c": cm.get("temperature_c"),
                   "obliquity": _obliquity(cm.get("obliquity")), "warnings": "; ".join(cm.get("warnings") or [])}
         for b in cm.get("boundaries") or []:
             if not isinstance(b, dict):
@@ -46,7 +46,7 @@ def crystal_model_table(records) -> pd.DataFrame:
             for element, td in clocks:
                 td = td if isinstance(td, dict) else {}
                 rows.append({**common, "boundary": b.get("id"), "position_um": b.get("position_um"),
-                             "given_position_um": b.get("given_position_um"), "element": element,
+                             "fitted_position_um": b.get("fitted_position_um"), "element": element,
                              "statement": td.get("statement", "none"), "median_days": td.get("median"),
                              "p2_5_days": td.get("p2_5"), "p97_5_days": td.get("p97_5"),
                              "upper_bound_days": td.get("upper_bound"), "lower_bound_days": td.get("lower_bound"),

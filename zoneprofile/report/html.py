@@ -13,7 +13,7 @@ import math
 from collections import defaultdict
 from pathlib import Path
 
-from zoneprofile.report.figures import format_days
+from zoneprofile._units import format_days
 from zoneprofile.report.provenance import (
     CAUTION,
     citation_text,
@@ -25,6 +25,10 @@ from zoneprofile.report.style import CSS
 from zoneprofile.report.timetext import resolved_text, time_range_text, time_statement
 
 __all__ = ["build_html", "collect_warnings"]
+
+# a long unbroken name (sample, crystal, file path, checksum) may break anywhere inside a table cell, so that
+# no table grows wider than the page (tests/report/test_browser.py checks this at a 1400 px window)
+_TABLE_CSS = "th,td{overflow-wrap:anywhere}"
 
 
 def _e(x) -> str:
@@ -147,7 +151,7 @@ def _summary_section(records, population) -> str:
     return "".join(parts)
 
 
-def _chronology_section(population, pop_figs, records=()) -> str:
+def _chronology_section(population, pop_figs, records=(), paper=None) -> str:
     parts = []
     settings = population.get("settings") or {}
     parts.append(
@@ -158,6 +162,9 @@ def _chronology_section(population, pop_figs, records=()) -> str:
     from zoneprofile.report.ladders import ladders_html
 
     parts.append(ladders_html(records, population))
+    from zoneprofile.report.population_figures import paper_figures_html
+
+    parts.append(paper_figures_html(paper, _img, _e))
     from zoneprofile.report._crystal_html import per_element_note
 
     parts.append(per_element_note(records))
@@ -245,9 +252,16 @@ def _crystal_section(k, record, fig_png) -> str:
     if fig_png is not None:
         parts.append(_img(fig_png, f"Profile and fits of {name}",
                           "Top: profile with zones shaded, steps (solid: reverse, dotted: normal), "
-                          "resorption surfaces (dash-dot), oscillatory bands (hatched), dated boundaries "
-                          "(triangles); the map where there is one. Below: each dated boundary with data, "
-                          "best fit, initial step and the 95% Monte Carlo band."))
+                          "resorption surfaces (dash-dot; set beside a step at the same place), oscillatory "
+                          "bands (hatched), dated boundaries (triangles); points flagged by QC hollow and grey, "
+                          "never setting the axis range; the map where there is one. Below: each dated "
+                          "boundary with data (bars: ±1 sd where known), best fit, the 95% model band and the "
+                          "model's initial profile (dashed). For Mg, Sr and Ba in plagioclase that initial "
+                          "profile is K(An)·C<sub>melt</sub> (Bindeman et al. 1998) at the measured An, "
+                          "smoothed and sharpened at its step, so it follows the An zoning and shows a narrow "
+                          "spike or dip where the An step (placed from the An analyses) and the fitted step of "
+                          "the element do not coincide exactly: it is the condition the model started from, not "
+                          "a fitted shape."))
     bs = record.get("boundaries") or []
     if bs:
         rows = []
@@ -329,11 +343,13 @@ def _provenance_section(provenance) -> str:
     return "".join(parts)
 
 
-def build_html(records, population, provenance, *, laws, crystal_pngs, population_pngs, title=None) -> str:
+def build_html(records, population, provenance, *, laws, crystal_pngs, population_pngs, title=None,
+               paper_figures=None) -> str:
     """Assemble the report page.
 
     ``crystal_pngs`` maps the record index to its PNG file (or None);
-    ``population_pngs`` is the dict returned by ``render_population_figures``.
+    ``population_pngs`` is the dict returned by ``render_population_figures``;
+    ``paper_figures`` the files of ``population_figures.render_paper_figures``.
     """
     title = title or (provenance or {}).get("title") or "Recharge chronology report"
     sw = (provenance or {}).get("software") or {}
@@ -349,7 +365,7 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
            ("laws", "Laws and parameters"), ("provenance", "Provenance"), ("cite", "How to cite")]
     out = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
            '<meta name="viewport" content="width=device-width, initial-scale=1">',
-           f"<title>{_e(title)}</title><style>{CSS}</style></head><body><main>",
+           f"<title>{_e(title)}</title><style>{CSS}{_TABLE_CSS}</style></head><body><main>",
            f"<h1>{_e(title)}</h1>",
            f'<p class="meta">zoneprofile {_e(version or "")}'
            + (f" · run {_e(created)}" if created else "")
@@ -358,7 +374,7 @@ def build_html(records, population, provenance, *, laws, crystal_pngs, populatio
     out.append(f'<section id="caution"><h2>Caution</h2><div class="caution"><p>{_e(CAUTION)}</p></div></section>')
     out.append(f'<section id="summary"><h2>Summary</h2>{_summary_section(records, population)}</section>')
     out.append(f'<section id="chronology"><h2>Recharge chronology</h2>'
-               f"{_chronology_section(population, population_pngs, records)}</section>")
+               f"{_chronology_section(population, population_pngs, records, paper_figures)}</section>")
     iv_rows = _intervals_rows(records)
     from zoneprofile.report._crystal_html import gap_rows
 

@@ -168,7 +168,7 @@ def _e(x) -> str:
 
 
 def _days(x) -> str:
-    from zoneprofile.report.figures import format_days
+    from zoneprofile._units import format_days
 
     return format_days(x)
 

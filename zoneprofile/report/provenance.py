@@ -110,7 +110,7 @@ def complete_provenance(provenance, records) -> dict:
     prov = dict(provenance or {})
     prov["laws"] = law_entries(records, provenance)
     if "inputs" not in prov:
-        prov["inputs"] = [dict(i, sample=r.get("sample"), crystal=r.get("crystal"))
+        prov["inputs"] = [dict(i, sample=r["sample"], crystal=r["crystal"])
                           for r in records for i in (r.get("inputs") or [])]
     prov.setdefault("caution", CAUTION)
     return prov

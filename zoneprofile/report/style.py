@@ -10,7 +10,7 @@ deuteranomaly.
 
 from __future__ import annotations
 
-__all__ = ["COLOURS", "SERIES", "MAP_CMAP", "FIG_DPI", "CSS"]
+__all__ = ["COLOURS", "SERIES", "LABELS", "MAP_CMAP", "FIG_DPI", "CSS"]
 
 # name -> hex (Okabe & Ito 2008)
 COLOURS = {
@@ -28,7 +28,7 @@ COLOURS = {
 # role -> (colour, linestyle, marker): each role distinguishable without colour
 SERIES = {
     "data": (COLOURS["black"], "none", "o"),
-    "flagged": (COLOURS["grey"], "none", "x"),
+    "flagged": (COLOURS["grey"], "none", "o"),  # drawn hollow: a white face, a grey rim
     "profile": (COLOURS["blue"], "-", "o"),
     "model": (COLOURS["vermilion"], "-", None),
     "initial": (COLOURS["black"], "--", None),
@@ -41,6 +41,24 @@ SERIES = {
     "kde": (COLOURS["green"], "-", None),
     "boundary": (COLOURS["blue"], "none", "o"),
     "unresolved": (COLOURS["grey"], "none", "<"),
+}
+
+# the words of every figure, in one place (report and every --plot)
+LABELS = {
+    "distance": "distance from rim (µm)",
+    "band": "95% model band",
+    "initial": "initial profile (model)",
+    "data": "data (±1 sd)",
+    "data_plain": "data",
+    "model": "best fit",
+    "flagged": "flagged by QC (left out)",
+    "flagged_off": "flagged, off scale",
+    "zone": "zone (alternate shading)",
+    "band_osc": "oscillatory band",
+    "resorption": "resorption surface",
+    "dated": "dated boundary",
+    "boundary": "boundary",
+    "traverse": "traverse (rim → core)",
 }
 
 # zone shading cycle (light, alternating; zone kind is written in the table)

@@ -81,7 +81,7 @@ def analyses_table(records) -> pd.DataFrame:
         if not prof.get("distance_um"):
             continue
         n = len(prof["distance_um"])
-        cols = {"sample": [r.get("sample")] * n, "crystal": [r.get("crystal")] * n,
+        cols = {"sample": [r["sample"]] * n, "crystal": [r["crystal"]] * n,
                 "mineral": [r.get("mineral")] * n}
         for k, v in prof.items():
             if isinstance(v, list) and len(v) == n:
@@ -167,21 +167,19 @@ def event_long_tables(population) -> tuple[pd.DataFrame, pd.DataFrame]:
     """
     samples, probs = [], []
     block = (population or {}).get("events") or {}
-    for e in block.get("events") or []:
-        for sample, n in (e.get("by_sample") or {}).items():
-            n = n.get("n_crystals") if isinstance(n, dict) else n
-            samples.append({"scope": "population", "element": "", "event": e.get("id"), "sample": sample,
+    for e in block.get("events") or []:  # PopulationEvent (zoneprofile/_records.py): by_sample {sample: n}
+        for sample, n in e["by_sample"].items():
+            samples.append({"scope": "population", "element": "", "event": e["id"], "sample": sample,
                             "n_crystals": n})
     for el, eb in ((population or {}).get("elements") or {}).items():
-        for e in eb.get("events") or []:
-            for sample, n in (e.get("by_sample") or {}).items():
-                n = n.get("n_crystals") if isinstance(n, dict) else n
-                samples.append({"scope": "element", "element": e.get("element") or el, "event": e.get("id"),
-                                "sample": sample, "n_crystals": n})
-    for m in block.get("members") or []:
-        for event, p in (m.get("probabilities") or {}).items():
-            probs.append({"sample": m.get("sample"), "crystal": m.get("crystal"), "boundary": m.get("boundary"),
-                          "element": m.get("element"), "event": event, "probability": p})
+        for e in eb["events"]:  # ElementEvent: by_sample {sample: {n_crystals, n_analysed, fraction}}
+            for sample, n in e["by_sample"].items():
+                samples.append({"scope": "element", "element": e["element"] or el, "event": e["id"],
+                                "sample": sample, "n_crystals": n["n_crystals"]})
+    for m in block.get("members") or []:  # EventMember
+        for event, p in m["probabilities"].items():
+            probs.append({"sample": m["sample"], "crystal": m["crystal"], "boundary": m["boundary"],
+                          "element": m["element"], "event": event, "probability": p})
     return (pd.DataFrame(samples, columns=["scope", "element", "event", "sample", "n_crystals"]),
             pd.DataFrame(probs, columns=["sample", "crystal", "boundary", "element", "event", "probability"]))
 

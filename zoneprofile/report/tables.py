@@ -57,7 +57,7 @@ def zones_table(records) -> pd.DataFrame:
     rows = []
     for r in records:
         z = r.get("zones") or {}
-        base = {"sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
+        base = {"sample": r["sample"], "crystal": r["crystal"], "mineral": r.get("mineral"),
                 "column": z.get("column")}
         for item in z.get("zones") or []:
             rows.append({**base, "feature": "zone", **{k: item.get(k) for k in
@@ -106,7 +106,7 @@ def fits_table(records) -> pd.DataFrame:
             td = b.get("time_days") or {}
             t_sd = b.get("temperature_sd_c")
             rows.append({
-                "sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
+                "sample": r["sample"], "crystal": r["crystal"], "mineral": r.get("mineral"),
                 "position_um": b.get("position_um"), "fitted_position_um": b.get("fitted_position_um"),
                 "kind": b.get("kind"), "element": b.get("element"), "law": b.get("law"),
                 "law_status": b.get("law_status"), "partition_model": _setting(r, b, "partition_model"),
@@ -130,7 +130,7 @@ def intervals_table(records) -> pd.DataFrame:
     for r in records:
         for iv in r.get("recharge_intervals_days") or []:
             rows.append({
-                "sample": r.get("sample"), "crystal": r.get("crystal"), "element": iv.get("element"),
+                "sample": r["sample"], "crystal": r["crystal"], "element": iv.get("element"),
                 "outer_um": iv.get("outer_um"), "inner_um": iv.get("inner_um"),
                 "median_days": iv.get("median"), "p2_5_days": iv.get("p2_5"), "p16_days": iv.get("p16"),
                 "p84_days": iv.get("p84"), "p97_5_days": iv.get("p97_5"), "n_draws": iv.get("n_draws"),
@@ -153,8 +153,8 @@ def crystals_table(records) -> pd.DataFrame:
                   + len(cm.get("warnings") or []))
         prof = r.get("profile") or {}
         rows.append({
-            "sample": r.get("sample"), "crystal": r.get("crystal"), "mineral": r.get("mineral"),
-            "status": "failed" if r.get("error") else "ok", "error": r.get("error") or "",
+            "sample": r["sample"], "crystal": r["crystal"], "mineral": r.get("mineral"),
+            "status": "failed" if r["error"] else "ok", "error": r["error"] or "",
             "n_points": len(prof.get("distance_um") or []), "n_steps": len(z.get("steps") or []),
             "n_resorption_surfaces": len(z.get("resorption_surfaces") or []),
             "n_dated_boundaries": len(bs) or len(cmb),
@@ -173,16 +173,16 @@ def events_table(population) -> pd.DataFrame:
 
     rows = population_event_rows(population)
     for block in (population or {}).get("elements", {}).values():
-        for e in block.get("events") or []:
+        for e in block["events"]:  # ElementEvent (zoneprofile/_records.py)
             rows.append({
-                "scope": "element", "element": e.get("element"), "event": e.get("id"),
-                "median_days": e.get("median_days"), "p2_5_days": e.get("p2_5_days"),
-                "p97_5_days": e.get("p97_5_days"), "spread_log10": e.get("spread_log10"),
-                "n_boundaries": e.get("n_boundaries"), "n_bounds": e.get("n_bounds"),
-                "n_crystals": e.get("n_crystals"), "fraction_of_crystals": e.get("fraction_of_crystals"),
-                "by_sample": _join(f"{s}:{v.get('n_crystals')}" for s, v in (e.get("by_sample") or {}).items()),
-                "crystals": _join(f"{c['sample']}/{c['crystal']}" for c in e.get("crystals") or []),
-                "warnings": _join(e.get("warnings")),
+                "scope": "element", "element": e["element"], "event": e["id"],
+                "median_days": e["median_days"], "p2_5_days": e["p2_5_days"],
+                "p97_5_days": e["p97_5_days"], "spread_log10": e["spread_log10"],
+                "n_boundaries": e["n_boundaries"], "n_bounds": e["n_bounds"],
+                "n_crystals": e["n_crystals"], "fraction_of_crystals": e["fraction_of_crystals"],
+                "by_sample": _join(f"{s}:{v['n_crystals']}" for s, v in e["by_sample"].items()),
+                "crystals": _join(f"{c['sample']}/{c['crystal']}" for c in e["crystals"]),
+                "warnings": _join(e["warnings"]),
             })
     return _frame(rows, EVENT_COLUMNS)
 

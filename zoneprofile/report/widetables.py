@@ -44,7 +44,7 @@ def settings_tables_html(records, *, table, render, escape, max_columns: int = M
             rows = []
             for r in records:
                 p = r.get("parameters") or {}
-                rows.append([escape(r.get("sample")), escape(r.get("crystal")),
+                rows.append([escape(r["sample"]), escape(r["crystal"]),
                              *[render(p.get(k)) if k in p else "" for k in chunk]])
             parts.append(table(["sample", "crystal", *chunk], rows))
     return "".join(parts)

@@ -256,9 +256,9 @@ def bench_refits():
 
     original = unc.propagate
 
-    def keep(ctx):
-        seen.update(ctx)
-        return original(ctx)
+    def keep(state):  # the fit's FitState (diffusion/_state.py), read field by field
+        seen.update(vars(state))
+        return original(state)
 
     # fitting.py holds its own name for propagate (imported at module level): patch that one
     fitting_module.propagate = keep

@@ -9,7 +9,8 @@ Import from here::
 - Solver: :class:`LinearDiffusion` (spectral, An-coupled), :func:`evolve_nonlinear`
   (implicit, D depending on composition), grids :func:`uniform_grid`,
   :func:`refined_grid`, spot resolution :func:`beam_matrix`.
-- Fitting: :func:`fit_boundary` -> :class:`FitResult`; :func:`find_boundaries`.
+- Fitting: :func:`fit_boundary` -> :class:`FitResult`; :func:`find_boundaries`; its options
+  grouped in :mod:`zoneprofile.diffusion.options`.
 - Temperature paths: :class:`LinearCooling`, :class:`TablePath`.
 - Forward model and synthetic data: :func:`simulate_boundary`,
   :func:`synthetic_boundary_profile`.

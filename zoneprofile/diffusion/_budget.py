@@ -39,6 +39,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -50,6 +51,9 @@ from zoneprofile.diffusion.draws import (
     section_obliquity_deg,
     shared_normals,
 )
+
+if TYPE_CHECKING:  # annotations only
+    from zoneprofile.diffusion._problem import Problem
 
 __all__ = [
     "BudgetOptions",
@@ -183,18 +187,22 @@ def half_normal(seed: int, n: int, sd: float, quantity: str) -> np.ndarray:
     return np.abs(shared_normals(seed, n, quantity)) * float(sd)
 
 
-def refit_log10_dt(ctx, problem) -> float:
-    """log10 D·t of the best fit refitted with a changed ``problem`` (values refitted)."""
+def refit_log10_dt(state, problem: Problem) -> float:
+    """log10 D·t of the best fit refitted with a changed ``problem`` (values refitted).
+
+    ``state``: the fit's :class:`~zoneprofile.diffusion._state.FitState` (which names this
+    module's BudgetOptions, so it is not imported here: no circle of imports).
+    """
     from zoneprofile.diffusion._optimise import _least_squares, _refit_projected
 
-    best, lower, upper, vary = ctx["best"], ctx["lower"], ctx["upper"], np.array(ctx["vary"])
-    model = problem.model(ctx["temperature_c"], evaluator="rational")
+    best, lower, upper, vary = state.best, state.lower, state.upper, np.array(state.vary)
+    model = problem.model(state.temperature_c, evaluator="rational")
     if hasattr(model, "basis_predictions"):
-        theta = _refit_projected(model, problem.y, ctx["weights"], np.array(best, float), lower, upper, vary)
+        theta = _refit_projected(model, problem.y, state.weights, np.array(best, float), lower, upper, vary)
     else:
         lo = np.where(vary, lower, best - 1e-9)
         hi = np.where(vary, upper, best + 1e-9)
-        theta, _ = _least_squares(model, problem.y, ctx["weights"], best, lo, hi, max_nfev=200)
+        theta, _ = _least_squares(model, problem.y, state.weights, best, lo, hi, max_nfev=200)
     return float(theta[0])
 
 
@@ -206,19 +214,19 @@ def _changed(problem, **changes):
     return Problem(**fields)
 
 
-def partition_term(ctx, a_sd_j_mol) -> tuple[float, float]:
-    """(d log10 D·t / dA per J/mol, sd of A used): two refits at A ± sd."""
-    problem = ctx["problem"]
+def partition_term(state, a_sd_j_mol: float) -> tuple[float, float]:
+    """(d log10 D·t / dA per J/mol, sd of A used): two refits at A ± sd (``state``: the fit's FitState)."""
+    problem = state.problem
     if problem.coupling != "an" or problem.partition_ab is None or a_sd_j_mol <= 0:
         return 0.0, 0.0
     a, b = problem.partition_ab
-    up = refit_log10_dt(ctx, _changed(problem, partition_ab=(a + a_sd_j_mol, b)))
-    dn = refit_log10_dt(ctx, _changed(problem, partition_ab=(a - a_sd_j_mol, b)))
+    up = refit_log10_dt(state, _changed(problem, partition_ab=(a + a_sd_j_mol, b)))
+    dn = refit_log10_dt(state, _changed(problem, partition_ab=(a - a_sd_j_mol, b)))
     return (up - dn) / (2.0 * a_sd_j_mol), float(a_sd_j_mol)
 
 
-def an_noise_sd(ctx) -> float:
-    """sd of log10 D·t from the noise of the An levels either side of the boundary.
+def an_noise_sd(state) -> float:
+    """sd of log10 D·t from the noise of the An levels either side of the boundary (``state``: the fit's FitState).
 
     The An the model holds frozen is a running mean of 5 points on each side
     (or the mean of a flat profile), so each side's level is uncertain by
@@ -227,20 +235,20 @@ def an_noise_sd(ctx) -> float:
     sensitivities; the sides are independent, so their effects add in
     quadrature. Deterministic: no draws.
     """
-    an = ctx.get("an_inputs")
-    problem = ctx["problem"]
-    if not an or problem.coupling != "an" or problem.x_an_cells is None:
+    an = state.an_values
+    problem = state.problem
+    if an is None or problem.coupling != "an" or problem.x_an_cells is None:
         return 0.0
     from zoneprofile.diffusion._steps import _noise_sd
 
-    se = _noise_sd(np.asarray(an["values"], float) / 100.0) / math.sqrt(AN_LEVEL_POINTS)
+    se = _noise_sd(np.asarray(an, float) / 100.0) / math.sqrt(AN_LEVEL_POINTS)
     if not se > 0:
         return 0.0
     cells = np.asarray(problem.x_an_cells, float)
-    rimward = problem.grid.centres_um < float(ctx["best"][1])
-    best = float(ctx["best"][0])
+    rimward = problem.grid.centres_um < float(state.best[1])
+    best = float(state.best[0])
     shifts = []
     for side in (rimward, ~rimward):
         raised = np.clip(cells + se * side, 0.0, 1.0)
-        shifts.append(refit_log10_dt(ctx, _changed(problem, x_an_cells=raised)) - best)
+        shifts.append(refit_log10_dt(state, _changed(problem, x_an_cells=raised)) - best)
     return float(math.hypot(*shifts))

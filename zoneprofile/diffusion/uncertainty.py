@@ -31,6 +31,7 @@ import numpy as np
 
 from zoneprofile._units import format_days, format_days_range
 from zoneprofile.diffusion._optimise import _least_squares, _projected_fit, _refit_projected
+from zoneprofile.diffusion._state import FitState
 from zoneprofile._api import FitVocabulary  # summary / to_dict / to_frame / _repr_html_
 
 __all__ = ["FitResult", "propagate", "PERCENTILES"]
@@ -173,18 +174,18 @@ def _percentiles(values):
     return {k: float(np.percentile(v, q)) for k, q in PERCENTILES.items()}
 
 
-def _noise_offsets(ctx, rng):
+def _noise_offsets(state: FitState, rng: np.random.Generator) -> tuple[np.ndarray, str]:
     """log10 τ of refits to resampled data (or covariance draws); also the refit parameter sets."""
 
-    problem, model, best = ctx["problem"], ctx["model"], ctx["best"]
-    lower, upper, vary = ctx["lower"], ctx["upper"], np.array(ctx["vary"])
-    weights, pred, resid = ctx["weights"], ctx["pred"], ctx["residuals"]
-    n_refits = ctx["noise_refits"]
+    problem, model, best = state.problem, state.model, state.best
+    lower, upper, vary = state.lower, state.upper, np.array(state.vary)
+    weights, pred, resid = state.weights, state.pred, state.residuals
+    n_refits = state.noise_refits
     n, p = resid.size, int(vary.sum())
-    at_floor = best[0] <= ctx["log_bounds"][0] + 0.1
+    at_floor = best[0] <= state.log_bounds[0] + 0.1
     if problem.nonlinear and not at_floor:
-        out = ctx["best_fit"]
-        names = ctx["param_names"]
+        out = state.best_fit
+        names = state.param_names
         var_names = [nm for nm, v in zip(names, vary) if v]
         covar = out.covar
         if covar is not None and np.all(np.isfinite(covar)) and out.var_names == var_names:
@@ -246,12 +247,12 @@ def _refits_stable(before, after) -> bool:
     return bool(np.max(np.abs(a - b)) <= STABLE_TOLERANCE_LOG10)
 
 
-def _data_seed(ctx) -> int:
+def _data_seed(state: FitState) -> int:
     """Seed of the noise refits: a hash of the fitted points, their weights and the best fit."""
     import hashlib
 
     h = hashlib.sha256()
-    for a in (ctx["problem"].x_um, ctx["problem"].y, ctx["weights"], ctx["best"]):
+    for a in (state.problem.x_um, state.problem.y, state.weights, state.best):
         h.update(np.ascontiguousarray(np.asarray(a, float)).tobytes())
     return int.from_bytes(h.digest()[:8], "big")
 
@@ -275,14 +276,14 @@ def _mixture_quantile(q, sd, shifts, weights):
     return float(brentq(f, lo, hi, xtol=1e-6))
 
 
-def _temperature_shape(ctx):
+def _temperature_shape(state: FitState):
     """log10 τ(T) − log10 τ(T0) as a function of δT (None when the shape does not depend on T)."""
 
-    problem = ctx["problem"]
-    t0, sd = ctx["temperature_c"], ctx["temperature_sd_c"]
-    if sd <= 0 or ctx["path"] is not None or not problem.shape_depends_on_temperature():
+    problem = state.problem
+    t0, sd = state.temperature_c, state.temperature_sd_c
+    if sd <= 0 or state.path is not None or not problem.shape_depends_on_temperature():
         return None, None
-    best, lower, upper, vary = ctx["best"], ctx["lower"], ctx["upper"], np.array(ctx["vary"])
+    best, lower, upper, vary = state.best, state.lower, state.upper, np.array(state.vary)
     lo_fit = np.where(vary, lower, best - 1e-9)
     hi_fit = np.where(vary, upper, best + 1e-9)
     offsets = _NODES * sd
@@ -301,9 +302,9 @@ def _temperature_shape(ctx):
             if len(done_dt) > 1:
                 coef = np.polyfit(done_dt, done_log, min(len(done_dt) - 1, 2))
                 start[0] = float(np.clip(np.polyval(coef, dt), lower[0], upper[0]))
-            theta = _refit_projected(model, problem.y, ctx["weights"], start, lower, upper, vary)
+            theta = _refit_projected(model, problem.y, state.weights, start, lower, upper, vary)
         else:
-            theta, _ = _least_squares(model, problem.y, ctx["weights"], best, lo_fit, hi_fit, max_nfev=200)
+            theta, _ = _least_squares(model, problem.y, state.weights, best, lo_fit, hi_fit, max_nfev=200)
         logs[i] = theta[0]
         done_dt.append(float(dt))
         done_log.append(float(theta[0]))
@@ -316,31 +317,31 @@ def _temperature_shape(ctx):
     return np.poly1d(coef), nodes
 
 
-def propagate(ctx) -> FitResult:
+def propagate(state: FitState) -> FitResult:
     """Monte Carlo draws of time from a finished fit (see module notes)."""
     from zoneprofile.diffusion.paths import durations_days
     from zoneprofile.diffusion.resolution import beam_matrix
 
-    problem, model, best = ctx["problem"], ctx["model"], ctx["best"]
-    rng = np.random.default_rng(ctx["seed"])
-    n_draws = ctx["draws"]
-    t0, t_sd = ctx["temperature_c"], ctx["temperature_sd_c"]
+    problem, model, best = state.problem, state.model, state.best
+    rng = np.random.default_rng(state.seed)
+    n_draws = state.draws
+    t0, t_sd = state.temperature_c, state.temperature_sd_c
     law = problem.law
     warnings = []
 
     # the noise refits resample the profile with a generator keyed by the data, not by the seed: the
     # analytical-noise part, and with it the verdict (resolved or an upper bound), is a function of
     # the data alone, so no seed can flip it (docs/fitting-and-uncertainty.md)
-    thetas, noise_method = _noise_offsets(ctx, np.random.default_rng(_data_seed(ctx)))
+    thetas, noise_method = _noise_offsets(state, np.random.default_rng(_data_seed(state)))
     log_noise = thetas[:, 0]
-    shape_fn, nodes = _temperature_shape(ctx)
+    shape_fn, nodes = _temperature_shape(state)
 
     # --- draws (module notes; the terms beyond the profile come from _budget)
     from zoneprofile.diffusion import _budget as bud
 
-    options = ctx.get("budget_options") or bud.BudgetOptions()
-    shared_seed, traverse_seed = bud.seeds(options, ctx["seed"])
-    defaults_used = dict(ctx.get("defaults_used") or {})
+    options = state.budget_options or bud.BudgetOptions()
+    shared_seed, traverse_seed = bud.seeds(options, state.seed)
+    defaults_used = dict(state.defaults_used or {})
     # temperature: one deviate per sample and draw index, never from the bootstrap's generator
     z_t = bud.shared_normals(shared_seed, n_draws, "temperature")
     t_draw = t0 + t_sd * z_t
@@ -351,11 +352,11 @@ def propagate(ctx) -> FitResult:
     # trust in the tails); when the best fit sits on the lower bound of D·t the refits
     # are used as they are (a one-sided distribution: only an upper bound)
     spread = float(np.std(log_noise, ddof=1)) if log_noise.size > 2 else 0.0
-    log_lo, log_hi = ctx["log_bounds"]
+    log_lo, log_hi = state.log_bounds
     # at the upper bound of D·t (a profile relaxed to equilibrium fits best) the fit's standard
     # error is not a standard error; nor is one wider than the whole range searched
     at_ceiling = best[0] >= log_hi - 0.1
-    stderr = ctx["best_fit"].stderr[0]
+    stderr = state.best_fit.stderr[0]
     usable = stderr is not None and np.isfinite(stderr) and stderr < log_hi - log_lo and not at_ceiling
     sd_noise = max(spread, float(stderr) if usable else 0.0)
     at_floor = best[0] <= log_lo + 0.1 or np.percentile(log_noise, 2.5) <= log_lo + 0.1
@@ -367,7 +368,7 @@ def propagate(ctx) -> FitResult:
         eps = sd_noise * z_noise
     # position of a boundary tied to a sharp An step: the data cannot place it inside the
     # gap between two An points better than their likelihood says; spread over positions
-    cands = ctx.get("position_candidates") or []
+    cands = state.position_candidates or []
     shifts, wts = np.zeros(1), np.ones(1)
     if len(cands) > 1:
         wts = np.array([c["weight"] for c in cands])
@@ -395,19 +396,19 @@ def propagate(ctx) -> FitResult:
             a0 = float(problem.partition_ab[0])
             slope = float(shape_fn.deriv()(0.0)) * (-(t0 + 273.15) / a0) if a0 else 0.0
         else:
-            slope, a_sd = bud.partition_term(ctx, float(a_sd))
+            slope, a_sd = bud.partition_term(state, float(a_sd))
         log_partition = slope * a_sd * bud.shared_normals(shared_seed, n_draws, "partition A")
     # An noise: the An levels either side of the boundary, from two refits (deterministic)
     log_an = np.zeros(n_draws)
     if options.an_noise:
-        an_sd = bud.an_noise_sd(ctx)
+        an_sd = bud.an_noise_sd(state)
         if an_sd > 0:
-            log_an = an_sd * bud.shared_normals(ctx["seed"], n_draws, "An noise")
+            log_an = an_sd * bud.shared_normals(state.seed, n_draws, "An noise")
     # --- resolution (deterministic given the converged refits: a seed does not decide it)
     dt_um2 = 10.0 ** (best[0] + 12.0)
-    res_var = ctx["resolution_var_um2"]
+    res_var = state.resolution_var_um2
     p_low = float(np.percentile(log_noise, 2.5)) if log_noise.size > 1 else best[0]
-    floor_delta = ctx.get("floor_delta_chi2")
+    floor_delta = state.floor_delta_chi2
     step_rejected = floor_delta is None or floor_delta > _UNDIFFUSED_DCHI2
     # resolved: the data show, at 95 % (noise and position), a relaxed width larger than the resolution
     q_low = _mixture_quantile(0.025, sd_noise, shifts, wts)
@@ -446,23 +447,23 @@ def propagate(ctx) -> FitResult:
         growth_sd = bud.DEFAULT_GROWTH_WIDTH_SD_UM
         defaults_used["growth_width_sd_um"] = (f"half-normal, sd {growth_sd:g} µm (width of the boundary when "
                                                "it grew)")
-    sg2 = bud.half_normal(ctx["seed"], n_draws, growth_sd, "growth width") ** 2
+    sg2 = bud.half_normal(state.seed, n_draws, growth_sd, "growth width") ** 2
 
     # obliquity
     obl = None
     factor = np.ones(n_draws)
     factor_best = 1.0
-    if ctx["obliquity_deg"] is not None or ctx["dip_deg"] is not None:
-        psi0 = float(ctx["obliquity_deg"] or 0.0)
-        phi0 = 90.0 if ctx["dip_deg"] is None else float(ctx["dip_deg"])
-        psi = psi0 + ctx["obliquity_sd_deg"] * bud.shared_normals(traverse_seed, n_draws, "obliquity given")
+    if state.obliquity_deg is not None or state.dip_deg is not None:
+        psi0 = float(state.obliquity_deg or 0.0)
+        phi0 = 90.0 if state.dip_deg is None else float(state.dip_deg)
+        psi = psi0 + state.obliquity_sd_deg * bud.shared_normals(traverse_seed, n_draws, "obliquity given")
         factor = (np.sin(np.radians(phi0)) * np.cos(np.radians(psi))) ** 2
         factor_best = (math.sin(math.radians(phi0)) * math.cos(math.radians(psi0))) ** 2
-        obl = {"psi_deg": psi0, "psi_sd_deg": ctx["obliquity_sd_deg"], "phi_deg": phi0,
-               "phi_assumed": ctx["dip_deg"] is None, "time_factor": factor_best,
+        obl = {"psi_deg": psi0, "psi_sd_deg": state.obliquity_sd_deg, "phi_deg": phi0,
+               "phi_assumed": state.dip_deg is None, "time_factor": factor_best,
                "formula": "t_true = t_apparent · (sin φ · cos ψ)²",
                "log10_dt_m2_apparent": float(best[0])}
-        if ctx["dip_deg"] is None:
+        if state.dip_deg is None:
             warnings.append("obliquity corrected for the in-section angle only; the boundary was assumed "
                             "perpendicular to the section (φ = 90°), so the time may still be too long")
         if factor_best < 0.05:
@@ -496,7 +497,7 @@ def propagate(ctx) -> FitResult:
         comp_draw["fo2_pa"] = fo2_buffer_pa(options.fo2_buffer, t_draw, delta_log=options.fo2_delta_log)
         fo2_note = f"fO2 follows {options.fo2_buffer.upper()} {options.fo2_delta_log:+g} with each drawn temperature"
 
-    path = ctx["path"]
+    path = state.path
     if path is None:
         d_draw = law.d_m2_s(t_draw, perturb=perturb or None, **comp_draw)
         time_days = tau_m2 / d_draw / SECONDS_PER_DAY
@@ -539,7 +540,7 @@ def propagate(ctx) -> FitResult:
             f"< {_UNDIFFUSED_DCHI2:g}, 95 %)"
         )
     if not resolved:
-        up = ctx.get("profile_upper_log10_dt")
+        up = state.profile_upper_log10_dt
         up = up() if callable(up) else up
         if at_ceiling or (up is not None and up >= log_hi - 0.05):
             # nothing bounds the time: an equilibrated profile fits as well as any (for a
@@ -646,7 +647,7 @@ def propagate(ctx) -> FitResult:
         temperature_sd_c=t_sd, log10_dt_m2=ld, time_days=td, resolved=resolved, warnings=warnings,
         time_draws_days=time_days, log10_dt_draws=log_dt_draws, distance_um=xc, model=curve,
         initial=initial, band_low=band_low, band_high=band_high, data_distance_um=x.copy(),
-        data_value=problem.y.copy(), data_model=ctx["pred"], residuals=problem.y - ctx["pred"],
+        data_value=problem.y.copy(), data_model=state.pred, residuals=problem.y - state.pred,
         uncertainty_budget=budget, obliquity=obl, temperature_nodes=nodes, draws=n_draws,
         noise_method=noise_method, budget_info=budget_info,
     )

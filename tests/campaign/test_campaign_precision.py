@@ -84,3 +84,21 @@ def test_usable_sd_keeps_the_fitted_analyses_only():
     assert warnings == []  # the gap sits beside a value that is left out anyway
     assert usable_sd(x, v, np.array([0.1, 0.5, 0.0, 0.3]), "Mg_ppm", warnings) is None
     assert warnings and "for 1 of the 3 analyses" in warnings[0]
+
+
+def test_boundary_fits_weighted_by_the_precision_draw_its_error_bars(tmp_path, monkeypatch):
+    import zoneprofile.diffusion as diffusion
+    from zoneprofile.campaign._pipeline import process_crystal
+
+    task, table = _laser_task(tmp_path, "boundary", lambda v: np.round(0.03 * v, 3))
+    seen = _capture(monkeypatch, diffusion, "fit_boundary")
+    rec = process_crystal(task)
+    assert rec["error"] is None and seen
+    assert all(kwargs.get("value_sd") is not None for _, kwargs in seen)
+    curve = rec["boundaries"][0]["curve"]
+    bars = np.asarray([np.nan if s is None else s for s in curve["data_sd"]], float)
+    data = np.asarray([np.nan if d is None else d for d in curve["data"]], float)
+    drawn = np.isfinite(data)
+    # each fitted analysis carries the precision of its row (3 % of the value, rounded to 0.001)
+    assert np.all(np.isfinite(bars[drawn]))
+    assert np.allclose(bars[drawn], np.round(0.03 * data[drawn], 3), atol=0.0015)

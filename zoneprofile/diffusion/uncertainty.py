@@ -69,6 +69,7 @@ class FitResult(FitVocabulary):
     residuals: np.ndarray
     uncertainty_budget: dict
     obliquity: dict | None = None
+    data_sd: np.ndarray | None = None  # the 1-sigma precision the fit weighted by (None: from the residuals)
     temperature_nodes: dict | None = None
     parameters: dict = field(default_factory=dict)
     chi2: float = float("nan")
@@ -115,7 +116,8 @@ class FitResult(FitVocabulary):
                 "band_low": self.band_low, "band_high": self.band_high,
             },
             "points": {"distance_um": self.data_distance_um, "value": self.data_value,
-                       "model": self.data_model, "residual": self.residuals},
+                       "model": self.data_model, "residual": self.residuals,
+                       **({} if self.data_sd is None else {"sd": self.data_sd})},
         }
 
     def report(self) -> str:
@@ -648,6 +650,7 @@ def propagate(state: FitState) -> FitResult:
         time_draws_days=time_days, log10_dt_draws=log_dt_draws, distance_um=xc, model=curve,
         initial=initial, band_low=band_low, band_high=band_high, data_distance_um=x.copy(),
         data_value=problem.y.copy(), data_model=state.pred, residuals=problem.y - state.pred,
+        data_sd=None if problem.sigma is None else np.asarray(problem.sigma, float).copy(),
         uncertainty_budget=budget, obliquity=obl, temperature_nodes=nodes, draws=n_draws,
         noise_method=noise_method, budget_info=budget_info,
     )

@@ -105,3 +105,39 @@ def test_a_normal_step_inside_a_zone_no_longer_biases_the_fit():
         oldest = rec["boundaries"][0]["age_days"]
         assert oldest["statement"] == "date" and oldest["p2_5"] <= 400.0 <= oldest["p97_5"], (seed, oldest)
         assert chi2[False] < 0.5 * chi2[True], (seed, chi2)
+
+
+def test_fit_crystal_command_takes_the_zonings_undated_an_step(tmp_path, capsys):
+    """``fit --crystal`` finds the normal An step the user did not list and holds the frozen An step there,
+    as a campaign does (the same reference crystal as above, one seed), saying so in the warnings."""
+    import json
+
+    import pandas as pd
+
+    from zoneprofile.cli import main
+
+    positions, an_zones, ages, t = [150.0, 110.0, 60.0, 15.0], [62.0, 50.0, 78.0, 55.0, 72.0], \
+        (500.0, 400.0, 80.0, 7.0), 850.0
+    rng = np.random.default_rng(1)
+    x = np.arange(1.0, 200.0, 2.0)
+    table = {"distance_um": x}
+    for el, melts in (("Mg", [600, 600, 900, 500, 800]), ("Sr", [500, 500, 700, 450, 650])):
+        xf, cf = _reference_crystal(positions, ages, an_zones, melts, el, t)
+        table[f"{el}_ppm"] = _spots(xf, cf, x, 4.0) * (1 + 0.02 * rng.standard_normal(x.size))
+    xf = (np.arange(1100) + 0.5) * 0.2
+    zone = np.zeros(xf.size, int)
+    for k, p in enumerate(positions):
+        zone[xf < p] = k + 1
+    table["An"] = _spots(xf, np.array(an_zones)[zone], x, 4.0) + rng.normal(0, 0.5, x.size)
+    path = tmp_path / "crystal.csv"
+    pd.DataFrame(table).to_csv(path, index=False)
+    out = tmp_path / "crystal.json"
+    code = main(["fit", str(path), "--crystal", "--element", "Mg,Sr", "--mineral", "plagioclase",
+                 "--temperature-c", "850", "--temperature-sd-c", "0", "--beam-um", "4", "--draws", "300",
+                 "--boundary-um", "110", "60", "15", "--seed", "1", "-o", str(out)])
+    assert code == 0, capsys.readouterr().err
+    rec = json.loads(out.read_text())["crystal_model"]
+    notes = [w for w in rec["warnings"] if w.startswith("An steps at")]
+    assert len(notes) == 1
+    found = float(notes[0].split("An steps at ", 1)[1].split(" µm", 1)[0].split(",")[0])
+    assert abs(found - 150.0) <= 4.0  # two analysis steps, the zoning's position precision here

@@ -113,6 +113,9 @@ def run_crystal(args):
     if len(set(positions)) != len(positions):
         raise InputError("a boundary position is given twice in --boundary-um")
     rim = "open" if args.rim == "auto" else args.rim
+    an_splits = None
+    if an is not None and np.ptp(an) > 0:
+        an_splits = undated_an_steps(an_x, an, positions, input_notes)
     laws = None
     if args.law:
         from zoneprofile.diffusion.laws import get_law
@@ -127,7 +130,8 @@ def run_crystal(args):
             temperature_sd_c=args.temperature_sd_c, an_distance_um=an_x, an=an, an_beam_um=an_beam, rim=rim,
             laws=laws, partition=args.partition,
             draws=args.draws, seed=args.seed, obliquity="section" if args.obliquity_deg is None else args.obliquity_deg,
-            position_window_um=args.boundary_window_um, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa)
+            position_window_um=args.boundary_window_um, fo2_pa=args.fo2_pa, pressure_mpa=args.pressure_mpa,
+            an_splits_um=an_splits)
     except InputError as exc:
         if exc.path is None:
             raise InputError(exc.message, path=profile_path, row=exc.row, column=exc.column, text=exc.text) from None
@@ -154,3 +158,21 @@ def run_crystal(args):
     write_json(out, document)
     print(result.report())
     return 0
+
+
+def undated_an_steps(an_x, an, positions, notes):
+    """The An steps the zoning analysis finds that are not among the given boundaries (farther than the
+    campaign's matching distance), as ``fit_crystal(an_splits_um=...)`` takes them: the frozen An steps
+    there too, as a campaign does with its zoning's undated steps (docs/whole-crystal-model.md)."""
+    from zoneprofile.campaign._boundaries import MATCH_UM
+    from zoneprofile.zoning import analyse_zoning
+
+    steps = analyse_zoning(an_x, an, column="An").steps
+    found = [float(s.position_um) for s in steps
+             if all(abs(float(s.position_um) - p) > MATCH_UM for p in positions)]
+    if found:
+        where = ", ".join(f"{v:.1f}" for v in sorted(found))
+        notes.append(f"An steps at {where} µm (found by the zoning analysis, not among --boundary-um) are taken "
+                     "as steps of the frozen An without a recharge: the partitioning steps there, the melt does "
+                     "not; give them in --boundary-um to date them as recharges")
+    return found or None

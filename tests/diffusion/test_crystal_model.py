@@ -373,3 +373,31 @@ def test_concordance_of_two_clocks():
     ub = time_summary(statement="upper_bound", upper=500.0)
     assert _concordance({"Mg": (time_summary(a), a), "Sr": (ub, None)})["status"] == "concordant"
     assert _concordance({"Mg": (time_summary(a), a)})["status"] == "one element"
+
+
+def test_cli_crystal_leaves_out_censored_values_element_by_element(crystal_csv, tmp_path, capsys):
+    """Below-detection marks stop no ``fit --crystal`` (they stopped it with 'not a number'): each element
+    leaves out its own censored analyses, counted in the warnings; the precision beside a censored value
+    is not read."""
+    import json
+
+    import pandas as pd
+
+    frame = pd.read_csv(crystal_csv, dtype=str, keep_default_na=False)
+    frame["Sr_ppm_sd"] = [f"{0.02 * float(v):.3f}" for v in frame["Sr_ppm"]]
+    frame.loc[10, "Sr_ppm"], frame.loc[10, "Sr_ppm_sd"] = "<0.5", "bdl"
+    frame.loc[20, "Sr_ppm"], frame.loc[20, "Sr_ppm_sd"] = "n.d.", ""
+    frame.loc[30, "Mg_ppm"] = "bdl"
+    path = tmp_path / "censored.csv"
+    frame.to_csv(path, index=False)
+    out = tmp_path / "crystal.json"
+    code, _, err = _cli(capsys, path, out, "--boundary-um", "110", "60", "15", "--draws", "200")
+    assert code == 0, err
+    doc = json.loads(out.read_text())
+    warnings = " ".join(doc["crystal_model"]["warnings"])
+    assert "2 censored analyses left out: Sr_ppm" in warnings
+    assert "1 censored analyses left out: Mg_ppm" in warnings
+    assert "Sr_ppm_sd is blank" not in warnings  # every Sr analysis fitted has its precision
+    n = len(frame)
+    # Mg and Sr points fitted, each without its own censored ones, plus the An of every row
+    assert doc["crystal_model"]["n_points"] == (n - 1) + (n - 2) + n

@@ -28,6 +28,7 @@ def run_crystal(args):
     from zoneprofile._output import check_outputs, write_json
     from zoneprofile._validation import InputError, require_file, require_in_range, require_positive
     from zoneprofile.cli._columns import _check_column, _header, _value_column, read_an, read_sd
+    from zoneprofile.cli._fit_inputs import blank_note, censored_note
     from zoneprofile.diffusion.crystal import fit_crystal
     from zoneprofile.diffusion.laws import ELEMENTS, MINERALS, normalise_element, normalise_mineral
     from zoneprofile.io.profile import read_profile
@@ -86,20 +87,29 @@ def run_crystal(args):
                              "column, give --an-from TABLE, or --an MOL if the crystal is unzoned in An",
                              path=profile_path)
         optional.append("An")
-    frame = read_profile(profile_path, columns=tuple(dict.fromkeys(columns.values())), optional=optional,
-                         include_flagged=args.include_flagged)
+    value_cols = tuple(dict.fromkeys(columns.values()))
+    frame = read_profile(profile_path, columns=value_cols, optional=optional, include_flagged=args.include_flagged,
+                         allow_blank=value_cols, allow_censored=value_cols)
+    input_notes = []
+    # below-detection and blank values are left out element by element and counted, as fit does
+    for col in value_cols:
+        censored = frame.pop(f"{col}_censored").to_numpy(bool)
+        blank = ~np.isfinite(frame[col].to_numpy(float)) & ~censored
+        input_notes += [n for n in (censored_note(int(censored.sum()), col), blank_note(int(blank.sum()), col)) if n]
+    measured = np.column_stack([np.isfinite(frame[c].to_numpy(float)) for c in value_cols])
+    frame = frame[measured.any(axis=1)].reset_index(drop=True)  # a row with no value at all serves nothing
     distance = frame["distance_um"].to_numpy(float)
     profiles = {}
-    input_notes = []
     for el, col in columns.items():
+        sub = frame[np.isfinite(frame[col].to_numpy(float))].reset_index(drop=True)
         if col == "X_Fe":
-            _check_column(frame, col, profile_path, low=0.0, high=1.0, what="X_Fe")
-            values = 100.0 * (1.0 - frame[col].to_numpy(float))
+            _check_column(sub, col, profile_path, low=0.0, high=1.0, what="X_Fe")
+            values = 100.0 * (1.0 - sub[col].to_numpy(float))
         else:
-            values = _check_column(frame, col, profile_path, what="concentration")
-        sd = read_sd(frame, col, profile_path, input_notes)
-        profiles[el] = {"distance_um": distance, "value": values, "sd": sd, "beam_um": args.beam_um,
-                        "beam_shape": args.beam_shape}
+            values = _check_column(sub, col, profile_path, what="concentration")
+        sd = read_sd(sub, col, profile_path, input_notes)
+        profiles[el] = {"distance_um": sub["distance_um"].to_numpy(float), "value": values, "sd": sd,
+                        "beam_um": args.beam_um, "beam_shape": args.beam_shape}
     an = an_x = None
     an_beam = args.an_beam_um
     an_source = None

@@ -147,9 +147,11 @@ def read_profile(
     columns : sequence of str
         Value columns that must be present and numeric in every kept row.
     optional : sequence of str
-        Value columns read when present (numeric, blanks become NaN); not read
-        in rows whose ``allow_blank``/``allow_censored`` value is blank or
-        below detection (those rows are left out by the caller).
+        Value columns read when present (numeric, blanks become NaN). A
+        ``<col>_sd`` is not read where its ``allow_blank``/``allow_censored``
+        value ``<col>`` is blank or below detection, another optional column
+        not where every such value of the row is (the caller leaves those
+        values out).
     include_flagged : bool
         Keep points whose ``qc`` is not ``ok`` (default: leave them out).
     allow_blank : sequence of str
@@ -195,16 +197,18 @@ def read_profile(
         out[col] = _to_float(frame, names[col], p, allow_blank=col in allow_blank, censored=mask)
         if mask is not None:
             out[f"{col}_censored"] = mask
-    # a row whose value is below detection or blank is left out by the caller, so its optional cells
-    # (the value's _sd, An) are not read: "<0.01" beside "bdl" must not stop the table
-    left_out = np.zeros(len(frame), bool)
-    for col in set(allow_censored) | set(allow_blank):
-        if col in out:
-            left_out |= ~np.isfinite(out[col].to_numpy(float))
+    # a value below detection or blank is left out by the caller, so the cells that only serve it are not
+    # read: its own "<value>_sd" where the value is missing, any other optional cell (An) where every such
+    # value of the row is missing ("<0.01" beside "bdl" must not stop the table)
+    missing = {col: ~np.isfinite(out[col].to_numpy(float))
+               for col in dict.fromkeys([*allow_censored, *allow_blank]) if col in out}
+    row_unused = np.logical_and.reduce(list(missing.values())) if missing else np.zeros(len(frame), bool)
     for col in optional:
         if col in names and col not in out:
+            serves = col[:-3] if col.endswith("_sd") else None
+            skip = missing[serves] if serves in missing else row_unused
             values = np.full(len(frame), np.nan)
-            kept = ~left_out
+            kept = ~skip
             if kept.any():
                 values[kept] = _to_float(frame[kept], names[col], p, allow_blank=True)
             out[col] = values

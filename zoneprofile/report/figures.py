@@ -440,24 +440,7 @@ def model_block(record, width="double") -> Canvas:
     """The whole-crystal model's panels (one per element with a stored curve) and one legend, as a block."""
     cm = record.get("crystal_model") or {}
     elements = [e for e in (cm.get("curves") or {}) if (cm["curves"].get(e) or {}).get("model")]
-    width_px = figure_width_px(width)
-    ncols = _fit_columns(len(elements), width)
-    canvas = Canvas(width_px, 1)
-    inner = width_px - 2 * _PAD
-    col_w = inner / ncols
-    handles = {}
-    bottom = 0.0
-    for k, element in enumerate(elements):
-        r, c = divmod(k, ncols)
-        row_top = r * (_FIT_TOP + _AXES_H + _BELOW + _FIT_GAP)
-        for label, h in _model_panel(canvas, record, element, (_PAD + c * col_w, row_top, _PAD + (c + 1) * col_w)):
-            handles.setdefault(label, h)
-        bottom = row_top + _FIT_TOP + _AXES_H + _BELOW
-    if handles:
-        bottom = legend(canvas, list(handles.items()), centre_x=width_px / 2, top=bottom + 8, max_width=inner,
-                        size_pt=7.5)
-    canvas.height = int(math.ceil(bottom + 4))
-    return canvas
+    return _panel_grid(elements, width, lambda canvas, element, cell: _model_panel(canvas, record, element, cell))
 
 
 def _load_map(m, map_dir):
@@ -572,17 +555,23 @@ def _fit_columns(n: int, width: str) -> int:
 
 def fits_block(boundaries, width="double") -> Canvas:
     """Every dated boundary's panel in a grid, one legend under them all, as a block."""
+    return _panel_grid(boundaries, width, _fit_panel)
+
+
+def _panel_grid(items, width, draw_panel) -> Canvas:
+    """One panel per item in a grid (``draw_panel(canvas, item, cell)`` returns its legend entries), one legend
+    under them all; the fit panels and the whole-crystal model's panels are laid out alike."""
     width_px = figure_width_px(width)
-    ncols = _fit_columns(len(boundaries), width)
+    ncols = _fit_columns(len(items), width)
     canvas = Canvas(width_px, 1)
     inner = width_px - 2 * _PAD
     col_w = inner / ncols
     handles = {}
     bottom = 0.0
-    for k, b in enumerate(boundaries):
+    for k, item in enumerate(items):
         r, c = divmod(k, ncols)
         row_top = r * (_FIT_TOP + _AXES_H + _BELOW + _FIT_GAP)
-        for label, h in _fit_panel(canvas, b, (_PAD + c * col_w, row_top, _PAD + (c + 1) * col_w)):
+        for label, h in draw_panel(canvas, item, (_PAD + c * col_w, row_top, _PAD + (c + 1) * col_w)):
             handles.setdefault(label, h)
         bottom = row_top + _FIT_TOP + _AXES_H + _BELOW
     if handles:

@@ -35,7 +35,7 @@ import numpy as np
 from zoneprofile.report.style import FIG_DPI
 
 __all__ = ["DPI", "PT", "Canvas", "Axes", "autoscale", "colour_bar", "colour_bar_width", "colour_image", "legend",
-           "log_tick_labels", "log_ticks", "nice_ticks", "step_xy", "text_width", "tick_labels"]
+           "legend_columns", "log_tick_labels", "log_ticks", "nice_ticks", "step_xy", "text_width", "tick_labels"]
 
 DPI = FIG_DPI
 PT = DPI / 72.0  # pixels per point
@@ -917,6 +917,18 @@ def autoscale(*arrays, margin=0.05):
     return lo - margin * span, hi + margin * span
 
 
+def legend_columns(widths, col_gap, max_width, ncol=None) -> list[float]:
+    """Widths of the legend's columns: the most columns (at most ``ncol``) whose entries, filled row by
+    row, fit in ``max_width`` with ``col_gap`` between columns (one column when none fits)."""
+    ncol = min(ncol or len(widths), len(widths))
+    while ncol > 1:
+        cols = [max(widths[k::ncol]) for k in range(ncol)]
+        if sum(cols) + col_gap * (ncol - 1) <= max_width:
+            return cols
+        ncol -= 1
+    return [max(widths)]
+
+
 def legend(canvas: Canvas, entries, *, centre_x, top, max_width, size_pt=7.5, ncol=None, left=None) -> float:
     """Legend rows centred at ``centre_x`` (or starting at ``left``) below ``top``; returns the bottom in pixels.
 
@@ -935,13 +947,8 @@ def legend(canvas: Canvas, entries, *, centre_x, top, max_width, size_pt=7.5, nc
     col_gap = 2.0 * size
     widths = [handle_w + gap + text_width(label, size_pt) for label, _ in entries]
     n = len(entries)
-    ncol = min(ncol or n, n)
-    while ncol > 1:
-        cols = [max(widths[k::ncol]) for k in range(ncol)]
-        if sum(cols) + col_gap * (ncol - 1) <= max_width:
-            break
-        ncol -= 1
-    cols = [max(widths[k::ncol]) for k in range(ncol)]
+    cols = legend_columns(widths, col_gap, max_width, ncol)
+    ncol = len(cols)
     total = sum(cols) + col_gap * (ncol - 1)
     row_h = 1.45 * size
     left = centre_x - total / 2 if left is None else left

@@ -41,7 +41,7 @@ import numpy as np
 from zoneprofile._limits import FIGURE_PNG_DPI, FIGURE_WIDTH_IN
 from zoneprofile._output import write_bytes
 from zoneprofile._units import format_days
-from zoneprofile.report._canvas import DPI, PT, Axes, Canvas, nice_ticks, text_width, tick_labels
+from zoneprofile.report._canvas import DPI, PT, Axes, Canvas, legend_columns, nice_ticks, text_width, tick_labels
 from zoneprofile.report.style import COLOURS, EVENT_FILLS, LABELS, SERIES
 
 __all__ = ["WIDTHS_MM", "PRINT_DPI", "PANELS_PER_PAGE", "ladder_crystals", "ladder_figure", "profile_pages",
@@ -212,20 +212,17 @@ def _key(canvas, entries, *, left, top, max_width, size_pt=6.5):
     size = size_pt * PT
     handle_w, gap, col_gap, row_h = 2.2 * size, 0.7 * size, 1.8 * size, 1.5 * size
     widths = [handle_w + gap + text_width(label, size_pt) for label, _ in entries]
-    ncol = max(1, len(entries))
-    while ncol > 1:
-        cols = [max(widths[k::ncol]) for k in range(ncol)]
-        if sum(cols) + col_gap * (ncol - 1) <= max_width:
-            break
-        ncol -= 1
-    cols = [max(widths[k::ncol]) for k in range(ncol)]
+    if not entries:
+        return top
+    cols = legend_columns(widths, col_gap, max_width)
+    ncol = len(cols)
     for k, (label, draw) in enumerate(entries):
         r, c = divmod(k, ncol)
         x = left + sum(cols[:c]) + col_gap * c
         y = top + r * row_h + row_h / 2
         draw(canvas, x, x + handle_w, y)
         canvas.text(x + handle_w + gap, y, label, size_pt, va="center")
-    return top + math.ceil(len(entries) / ncol) * row_h if entries else top
+    return top + math.ceil(len(entries) / ncol) * row_h
 
 
 # --------------------------------------------------------------------------- the ladder figure

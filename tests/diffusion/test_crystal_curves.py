@@ -74,6 +74,26 @@ def test_stored_curve_is_the_fit_and_follows_crank():
     assert float(np.sqrt(np.mean((model - truth) ** 2))) < 0.5 * sd
 
 
+def _normal_step_crystal(seed):
+    """The reference crystal (independent solver) with a normal An step at 150 µm (62 → 50 mol%) grown
+    from the same melt, inside the core zone of three recharges at 400, 80 and 7 d (850 °C), seen through
+    4 µm spots with 2 % noise: ``(x, {element: values}, An)``."""
+    positions, an_zones, ages, t = [150.0, 110.0, 60.0, 15.0], [62.0, 50.0, 78.0, 55.0, 72.0], \
+        (500.0, 400.0, 80.0, 7.0), 850.0
+    rng = np.random.default_rng(seed)
+    x = np.arange(1.0, 200.0, 2.0)
+    values = {}
+    for el, melts in (("Mg", [600, 600, 900, 500, 800]), ("Sr", [500, 500, 700, 450, 650])):
+        xf, cf = _reference_crystal(positions, ages, an_zones, melts, el, t)
+        values[el] = _spots(xf, cf, x, 4.0) * (1 + 0.02 * rng.standard_normal(x.size))
+    xf = (np.arange(1100) + 0.5) * 0.2
+    zone = np.zeros(xf.size, int)
+    for k, p in enumerate(positions):
+        zone[xf < p] = k + 1
+    an = _spots(xf, np.array(an_zones)[zone], x, 4.0) + rng.normal(0, 0.5, x.size)
+    return x, values, an
+
+
 @pytest.mark.slow  # six whole-crystal fits (about 8 s)
 def test_a_normal_step_inside_a_zone_no_longer_biases_the_fit():
     """The reference crystal (independent solver) has a normal An step at 150 µm (62 → 50 mol%) grown
@@ -81,21 +101,10 @@ def test_a_normal_step_inside_a_zone_no_longer_biases_the_fit():
     (``an_splits_um``, as a campaign passes the zoning's undated steps), the model fits the data
     (χ² falls to under half: measured 0.19–0.24 of the one-line value over these seeds) and the
     oldest recharge's 95 % interval holds its truth; with one An line through the zone it misfits."""
-    positions, an_zones, ages, t = [150.0, 110.0, 60.0, 15.0], [62.0, 50.0, 78.0, 55.0, 72.0], \
-        (500.0, 400.0, 80.0, 7.0), 850.0
+    t = 850.0
     for seed in (1, 2, 3):
-        rng = np.random.default_rng(seed)
-        x = np.arange(1.0, 200.0, 2.0)
-        profiles = {}
-        for el, melts in (("Mg", [600, 600, 900, 500, 800]), ("Sr", [500, 500, 700, 450, 650])):
-            xf, cf = _reference_crystal(positions, ages, an_zones, melts, el, t)
-            y = _spots(xf, cf, x, 4.0) * (1 + 0.02 * rng.standard_normal(x.size))
-            profiles[el] = {"distance_um": x, "value": y, "beam_um": 4.0}
-        xf = (np.arange(1100) + 0.5) * 0.2
-        zone = np.zeros(xf.size, int)
-        for k, p in enumerate(positions):
-            zone[xf < p] = k + 1
-        an = _spots(xf, np.array(an_zones)[zone], x, 4.0) + rng.normal(0, 0.5, x.size)
+        x, values, an = _normal_step_crystal(seed)
+        profiles = {el: {"distance_um": x, "value": y, "beam_um": 4.0} for el, y in values.items()}
         chi2 = {}
         for splits in (None, [150.0]):
             rec = fit_crystal(profiles, mineral="plagioclase", positions_um=[110.0, 60.0, 15.0], temperature_c=t,
@@ -116,19 +125,8 @@ def test_fit_crystal_command_takes_the_zonings_undated_an_step(tmp_path, capsys)
 
     from zoneprofile.cli import main
 
-    positions, an_zones, ages, t = [150.0, 110.0, 60.0, 15.0], [62.0, 50.0, 78.0, 55.0, 72.0], \
-        (500.0, 400.0, 80.0, 7.0), 850.0
-    rng = np.random.default_rng(1)
-    x = np.arange(1.0, 200.0, 2.0)
-    table = {"distance_um": x}
-    for el, melts in (("Mg", [600, 600, 900, 500, 800]), ("Sr", [500, 500, 700, 450, 650])):
-        xf, cf = _reference_crystal(positions, ages, an_zones, melts, el, t)
-        table[f"{el}_ppm"] = _spots(xf, cf, x, 4.0) * (1 + 0.02 * rng.standard_normal(x.size))
-    xf = (np.arange(1100) + 0.5) * 0.2
-    zone = np.zeros(xf.size, int)
-    for k, p in enumerate(positions):
-        zone[xf < p] = k + 1
-    table["An"] = _spots(xf, np.array(an_zones)[zone], x, 4.0) + rng.normal(0, 0.5, x.size)
+    x, values, an = _normal_step_crystal(1)
+    table = {"distance_um": x, **{f"{el}_ppm": y for el, y in values.items()}, "An": an}
     path = tmp_path / "crystal.csv"
     pd.DataFrame(table).to_csv(path, index=False)
     out = tmp_path / "crystal.json"
